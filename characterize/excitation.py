@@ -1,0 +1,282 @@
+"""Excitation signals: exponential sine sweeps, their sidecars and inverse filters.
+
+References
+----------
+A. Farina, "Simultaneous measurement of impulse response and distortion with a
+swept-sine technique", AES 108th Convention, preprint 5093 (2000).
+"""
+
+from __future__ import annotations
+
+import math
+import tomllib
+from dataclasses import asdict, dataclass
+from pathlib import Path
+
+import numpy as np
+from numpy.typing import NDArray
+
+from .errors import InputError
+
+#: Default fade lengths and silent tail of a generated sweep.
+DEFAULT_FADE_IN_S = 0.05
+DEFAULT_FADE_OUT_S = 0.01
+DEFAULT_TAIL_S = 1.0
+
+SAFETY_CAUTION = (
+    "CAUTION: driving resonators hard can exceed 110 dB SPL near the loudspeaker and "
+    "130 dB inside the cavity. Start at a low level and step up, wear hearing protection "
+    "above 85 dB(A), keep exposure short, never loop sweeps unattended, and follow your "
+    "local occupational-noise regulations (e.g. NIOSH REL 85 dB(A)/8 h, EU 2003/10/EC)."
+)
+
+
+@dataclass(frozen=True, slots=True)
+class SweepParams:
+    """Every parameter of an exponential sine sweep (SI units)."""
+
+    start_hz: float
+    stop_hz: float
+    duration_s: float
+    rate_hz: float
+    level_dbfs: float
+    fade_in_s: float = DEFAULT_FADE_IN_S
+    fade_out_s: float = DEFAULT_FADE_OUT_S
+    tail_s: float = DEFAULT_TAIL_S
+    kind: str = "exponential"
+
+    def to_dict(self) -> dict[str, float | str]:
+        return asdict(self)
+
+    @property
+    def sweep_rate(self) -> float:
+        """R = ln(f2/f1) (dimensionless)."""
+        return math.log(self.stop_hz / self.start_hz)
+
+    def harmonic_advance_s(self, order: int) -> float:
+        """Time by which the ``order``-th harmonic's impulse response precedes the
+        linear one after deconvolution: T ln(n) / ln(f2/f1) (Farina 2000)."""
+        return self.duration_s * math.log(order) / self.sweep_rate
+
+
+@dataclass(frozen=True)
+class Sweep:
+    """A sweep's parameters and samples (sweep followed by the silent tail)."""
+
+    params: SweepParams
+    samples: NDArray[np.float64]
+    estimated: bool = False  # True when the parameters were read off the samples
+
+
+def validate_params(p: SweepParams, source: str = "sweep") -> None:
+    """Raise :class:`InputError` for impossible sweep settings."""
+    nyq = p.rate_hz / 2
+    if not (p.rate_hz > 0):
+        raise InputError(source, "rate", f"must be > 0 Hz, got {p.rate_hz:g}")
+    if not (0 < p.start_hz < p.stop_hz):
+        raise InputError(source, "start/stop",
+                         f"need 0 < start < stop, got {p.start_hz:g} and {p.stop_hz:g} Hz")
+    if p.stop_hz > nyq:
+        raise InputError(source, "stop",
+                         f"{p.stop_hz:g} Hz is above the Nyquist frequency {nyq:g} Hz")
+    if not (p.duration_s > 0):
+        raise InputError(source, "duration", f"must be > 0 s, got {p.duration_s:g}")
+    if p.level_dbfs > 0:
+        raise InputError(source, "level", f"must be <= 0 dBFS, got {p.level_dbfs:g}")
+    if p.fade_in_s < 0 or p.fade_out_s < 0 or p.fade_in_s + p.fade_out_s > p.duration_s:
+        raise InputError(source, "fade", "fades must be >= 0 and shorter than the sweep together")
+    if p.tail_s < 0:
+        raise InputError(source, "tail", f"must be >= 0 s, got {p.tail_s:g}")
+
+
+def make_sweep(params: SweepParams) -> Sweep:
+    """Generate an exponential sine sweep (Farina 2000).
+
+    .. math::
+
+        x(t) = A \\sin\\left[\\frac{2\\pi f_1 T}{R}\\left(e^{tR/T} - 1\\right)\\right],
+        \\quad R = \\ln(f_2/f_1),\\ 0 \\le t < T
+
+    with half-Hann fades at both ends, peak amplitude ``A = 10**(level_dbfs/20)``
+    (full scale = 1), and ``tail_s`` of silence after it. The instantaneous
+    frequency is :math:`f_1 e^{tR/T}`.
+
+    References
+    ----------
+    A. Farina, "Simultaneous measurement of impulse response and distortion with a
+    swept-sine technique", AES 108th Convention, preprint 5093 (2000).
+    """
+    validate_params(params)
+    fs = params.rate_hz
+    n = int(round(params.duration_s * fs))
+    t = np.arange(n) / fs
+    r = params.sweep_rate
+    phase = 2 * np.pi * params.start_hz * params.duration_s / r * np.expm1(t * r / params.duration_s)
+    x = np.sin(phase)
+    n_in = int(round(params.fade_in_s * fs))
+    n_out = int(round(params.fade_out_s * fs))
+    if n_in > 0:
+        x[:n_in] *= 0.5 * (1 - np.cos(np.pi * np.arange(n_in) / n_in))
+    if n_out > 0:
+        x[n - n_out:] *= 0.5 * (1 + np.cos(np.pi * (np.arange(n_out) + 1) / n_out))
+    x *= 10 ** (params.level_dbfs / 20)
+    tail = np.zeros(int(round(params.tail_s * fs)))
+    return Sweep(params, np.concatenate([x, tail]))
+
+
+def sidecar_path(wav_path: str | Path) -> Path:
+    """The TOML sidecar that sits beside a sweep WAV (same stem)."""
+    return Path(wav_path).with_suffix(".toml")
+
+
+def sidecar_text(params: SweepParams) -> str:
+    """TOML text of the sidecar (written by hand: tomllib only reads)."""
+    lines = ["# exponential sine sweep written by characterize", "[sweep]"]
+    for key, value in params.to_dict().items():
+        lines.append(f'{key} = "{value}"' if isinstance(value, str) else f"{key} = {value!r}")
+    return "\n".join(lines) + "\n"
+
+
+def read_sidecar(path: str | Path) -> SweepParams:
+    """Read a sweep sidecar TOML; :class:`InputError` names the missing field."""
+    p = Path(path)
+    try:
+        data = tomllib.loads(p.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError(str(p), None, f"cannot read sidecar: {exc}") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(str(p), None, f"not valid TOML ({exc})") from None
+    table = data.get("sweep", data)
+    values: dict[str, float | str] = {}
+    for name in ("start_hz", "stop_hz", "duration_s", "rate_hz", "level_dbfs",
+                 "fade_in_s", "fade_out_s", "tail_s"):
+        if name not in table:
+            raise InputError(str(p), f"sweep.{name}", "missing")
+        v = table[name]
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+            raise InputError(str(p), f"sweep.{name}", f"expected a number, got {v!r}")
+        values[name] = float(v)
+    params = SweepParams(**values)  # type: ignore[arg-type]
+    validate_params(params, str(p))
+    return params
+
+
+def estimate_params(samples: NDArray[np.floating], rate_hz: float,
+                    source: str = "sweep") -> SweepParams:
+    """Read an exponential sweep's band and timing off its samples alone.
+
+    The instantaneous frequency (from the analytic signal's phase) of an
+    exponential sweep is :math:`f_1 e^{tR/T}`: its logarithm is fitted as a
+    straight line over the middle of the active part and extrapolated to the
+    active part's ends (Farina 2000 for the law).
+    """
+    from scipy.signal import hilbert
+
+    x = np.asarray(samples, dtype=np.float64)
+    env = np.abs(hilbert(x))
+    peak = float(np.max(env)) if x.size else 0.0
+    if peak <= 0:
+        raise InputError(source, None, "the sweep file is silent")
+    k = max(1, int(rate_hz * 0.002))
+    smooth = np.convolve(env, np.ones(k) / k, mode="same")
+    active = np.flatnonzero(smooth > 0.1 * peak)
+    i0, i1 = int(active[0]), int(active[-1]) + 1
+    if i1 - i0 < 0.05 * rate_hz:
+        raise InputError(source, None, "no sweep found (active part shorter than 50 ms)")
+    phase = np.unwrap(np.angle(hilbert(x[i0:i1])))
+    inst = np.diff(phase) * rate_hz / (2 * np.pi)
+    t = (np.arange(inst.size) + 0.5) / rate_hz
+    a, b = int(0.1 * inst.size), int(0.9 * inst.size)
+    ok = inst[a:b] > 0
+    if np.count_nonzero(ok) < 10:
+        raise InputError(source, None, "cannot read a rising frequency: not a sine sweep")
+    slope, icpt = np.polyfit(t[a:b][ok], np.log(inst[a:b][ok]), 1)
+    duration = (i1 - i0) / rate_hz
+    f1 = float(np.exp(icpt))
+    f2 = float(np.exp(icpt + slope * duration))
+    if not (slope > 0 and 0 < f1 < f2):
+        raise InputError(source, None, "the frequency does not rise exponentially: not a sweep")
+    f2 = min(f2, rate_hz / 2)
+    level = 20 * np.log10(float(np.max(np.abs(x[i0:i1]))))
+    return SweepParams(start_hz=f1, stop_hz=f2, duration_s=duration, rate_hz=rate_hz,
+                       level_dbfs=float(min(level, 0.0)), fade_in_s=0.0, fade_out_s=0.0,
+                       tail_s=(x.size - i1) / rate_hz)
+
+
+def load_sweep(path: str | Path, rate_hz: float | None = None) -> Sweep:
+    """Read a sweep WAV; take its exact parameters from the sidecar when present,
+    else read them off the samples (:func:`estimate_params`).
+
+    ``rate_hz``, when given, is the recording's rate; another rate is an error.
+    """
+    from .audio import read_audio
+
+    rec = read_audio(path)
+    if rate_hz is not None and rec.sample_rate_hz != rate_hz:
+        raise InputError(str(path), "sample rate",
+                         f"sweep is at {rec.sample_rate_hz:g} Hz but the recording is at "
+                         f"{rate_hz:g} Hz; resample one of them")
+    x = rec.channel(1)
+    side = sidecar_path(path)
+    if side.exists():
+        params = read_sidecar(side)
+        if params.rate_hz != rec.sample_rate_hz:
+            raise InputError(str(side), "sweep.rate_hz",
+                             f"says {params.rate_hz:g} Hz but the WAV is at "
+                             f"{rec.sample_rate_hz:g} Hz")
+        return Sweep(params, x, estimated=False)
+    return Sweep(estimate_params(x, rec.sample_rate_hz, str(path)), x, estimated=True)
+
+
+#: The deconvolution's causal band limit has its corners this factor inside the
+#: sweep's ends (half an octave), where the sweep still has its full level, so that
+#: sweep x inverse equals the band limit exactly and the responses stay causal.
+BAND_EDGE_FACTOR = math.sqrt(2.0)
+BAND_ORDER = 8
+#: Spectral division floor, relative to the sweep's peak power.
+INVERSE_FLOOR = 1e-10
+
+
+def usable_band(params: SweepParams) -> tuple[float, float]:
+    """The band in which a deconvolved response is reliable (Hz): the band
+    limit's corners, and below 0.45 of the sample rate."""
+    return (params.start_hz * BAND_EDGE_FACTOR,
+            min(params.stop_hz / BAND_EDGE_FACTOR, 0.45 * params.rate_hz))
+
+
+def band_filter(freqs_hz: NDArray[np.float64], lo_hz: float, hi_hz: float,
+                order: int = BAND_ORDER) -> NDArray[np.complex128]:
+    """Causal (minimum-phase) band limit: analog Butterworth high-pass at ``lo_hz``
+    times low-pass at ``hi_hz`` (S. Butterworth, "On the theory of filter
+    amplifiers", Wireless Engineer 7, 1930), evaluated on the FFT grid.
+
+    A causal band limit keeps the deconvolved impulse responses free of
+    precursors, so one window cut before the onset treats both channels alike.
+    """
+    from scipy.signal import butter, freqs_zpk
+
+    w = 2 * np.pi * np.asarray(freqs_hz, dtype=np.float64)
+    # zeros-poles-gain form: the polynomial form loses precision at order 8
+    zh, ph, kh = butter(order, 2 * np.pi * lo_hz, btype="highpass", analog=True, output="zpk")
+    zl, pl, kl = butter(order, 2 * np.pi * hi_hz, btype="lowpass", analog=True, output="zpk")
+    _, hh = freqs_zpk(zh, ph, kh, worN=w)
+    _, hl = freqs_zpk(zl, pl, kl, worN=w)
+    return np.asarray(hh * hl, dtype=np.complex128)
+
+
+def inverse_spectrum(sweep: Sweep, n_fft: int) -> NDArray[np.complex128]:
+    """Regularised inverse of the sweep's spectrum on an ``n_fft``-point rfft grid.
+
+    ``B(f) conj(X) / |X|^2`` with ``B`` the causal band limit of
+    :func:`band_filter` at the sweep's ends: deconvolving the sweep by itself
+    gives a band-limited, causal impulse at sample 0. This plays the part of
+    Farina's time-reversed, amplitude-compensated inverse filter (Farina 2000).
+    """
+    p = sweep.params
+    x = np.fft.rfft(sweep.samples, n_fft)
+    f = np.fft.rfftfreq(n_fft, 1 / p.rate_hz)
+    lo, hi = usable_band(p)
+    limit = band_filter(f, lo, min(hi, 0.45 * p.rate_hz))
+    power = np.abs(x) ** 2
+    floor = INVERSE_FLOOR * float(np.max(power))
+    return limit * np.conj(x) / np.maximum(power, floor)

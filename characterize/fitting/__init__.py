@@ -1,0 +1,1 @@
+"""Fitting: pure model functions (:mod:`.models`) and the lmfit fit (:mod:`.fit`)."""

@@ -1,0 +1,367 @@
+"""Inside/outside transfer function H(f) = P_inside / P_outside, with a per-bin
+noise estimate that becomes the fit weight.
+
+Two estimators:
+
+- :func:`sweep_transfer`: both channels deconvolved by the sweep (Farina 2000),
+  one common time window on both impulse responses, then the ratio of their
+  spectra. The room reaches both microphones, so it cancels in the ratio; the
+  window only drops the harmonic images (which arrive *before* the linear
+  response) and is long enough for the resonator's ringing to decay.
+- :func:`cross_spectral_transfer`: H1 = G_xy / G_xx with Welch averaging and the
+  ordinary coherence (Bendat & Piersol, *Random Data*, 4th ed. 2010, ch. 6 and 9),
+  for any broadband excitation.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from .errors import FitError
+from .excitation import Sweep, inverse_spectrum, usable_band
+
+#: Time before the direct sound's peak kept in the window (s); also the taper-in.
+PRE_ONSET_S = 0.004
+#: The window holds this many ringing time constants Q/(pi f0) when it can.
+WINDOW_TIME_CONSTANTS = 40.0
+#: Fewer than this many time constants in the window biases Q (physics sheet §7:
+#: Q reads 25.1 instead of 30 at 3 tau, 29.97 at 7 tau).
+MIN_WINDOW_TIME_CONSTANTS = 7.0
+#: Shortest window considered (s).
+MIN_WINDOW_S = 0.1
+#: Harmonic orders whose images are kept out of the window.
+HARMONIC_ORDERS_EXCLUDED = 8
+#: Segments averaged in the cross-spectral path should be at least this long,
+#: in units of 1/(bandwidth) = Q/f0 (Bendat & Piersol resolution bias rule).
+SEGMENT_BANDWIDTHS = 8.0
+#: Minimum number of Welch averages for the coherence-based error to hold.
+MIN_AVERAGES = 8
+
+
+@dataclass(frozen=True)
+class WindowInfo:
+    """The impulse-response window used on both channels."""
+
+    start_s: float  # relative to the direct sound's peak (negative: before it)
+    length_s: float
+    taper_in_s: float
+    taper_out_s: float
+    time_constants: float  # window length over the estimated Q/(pi f0)
+
+    def to_dict(self) -> dict[str, float]:
+        return {"start_s": self.start_s, "length_s": self.length_s,
+                "taper_in_s": self.taper_in_s, "taper_out_s": self.taper_out_s,
+                "time_constants": self.time_constants}
+
+
+@dataclass(frozen=True)
+class TransferFunction:
+    """H(f) on a frequency grid, with what is needed for its per-bin noise.
+
+    The complex noise of bin k has variance
+    ``(noise_a[k] + |H[k]|**2 * noise_b[k])`` (E|n|^2): inside-channel noise and
+    outside-channel noise carried through the ratio. :meth:`sigma` evaluates it
+    for any |H| (the fit uses its own model, which is less noisy than the data).
+    """
+
+    freqs_hz: NDArray[np.float64]
+    h: NDArray[np.complex128]
+    noise_a: NDArray[np.float64]
+    noise_b: NDArray[np.float64]
+    excited_band_hz: tuple[float, float]
+    method: str
+    reference_db: NDArray[np.float64]  # outside-channel level per bin (dB, arbitrary ref)
+    coherence: NDArray[np.float64] | None = None
+    window: WindowInfo | None = None
+    averages: int | None = None
+    impulse_t_s: NDArray[np.float64] | None = None
+    impulse_inside: NDArray[np.float64] | None = None
+    impulse_outside: NDArray[np.float64] | None = None
+
+    def sigma(self, h_abs: NDArray[np.float64] | None = None) -> NDArray[np.float64]:
+        """Per-bin standard deviation of the complex noise (sqrt of E|n|^2)."""
+        a = np.abs(self.h) if h_abs is None else np.asarray(h_abs)
+        return np.sqrt(self.noise_a + a**2 * self.noise_b)
+
+    @property
+    def resolution_hz(self) -> float:
+        return float(self.freqs_hz[1] - self.freqs_hz[0])
+
+
+def _fast_len(n: int) -> int:
+    from scipy.fft import next_fast_len
+
+    return int(next_fast_len(int(n), real=True))
+
+
+def estimate_peak(freqs_hz: NDArray[np.float64], h: NDArray[np.complex128],
+                  band_hz: tuple[float, float]) -> tuple[float, float]:
+    """Rough f0 and Q from |H|: the largest peak inside ``band_hz`` and its
+    half-power width (interpolated). Used for start values and windows only.
+
+    Raises :class:`FitError` when no peak stands out of the band edges.
+    """
+    f = freqs_hz
+    sel = np.flatnonzero((f >= band_hz[0]) & (f <= band_hz[1]) & np.isfinite(h))
+    if sel.size < 5:
+        raise FitError("too few frequency points in the excited band to find a resonance")
+    mag = np.abs(h[sel])
+    k = max(1, min(9, sel.size // 200))
+    if k > 1:
+        mag = np.convolve(mag, np.ones(k) / k, mode="same")
+    i = int(np.argmax(mag))
+    peak = mag[i]
+    if i == 0 or i == mag.size - 1:
+        raise FitError("no resonance peak inside the excited band (the largest |H| is at a "
+                       f"band edge, {f[sel[i]]:.1f} Hz)")
+    half = peak / math.sqrt(2)
+    lo = i
+    while lo > 0 and mag[lo] > half:
+        lo -= 1
+    hi = i
+    while hi < mag.size - 1 and mag[hi] > half:
+        hi += 1
+
+    def cross(j0: int, j1: int) -> float:
+        m0, m1 = mag[j0], mag[j1]
+        if m1 == m0:
+            return float(f[sel[j0]])
+        return float(f[sel[j0]] + (half - m0) * (f[sel[j1]] - f[sel[j0]]) / (m1 - m0))
+
+    f_lo = cross(lo, lo + 1) if mag[lo] <= half else float(f[sel[0]])
+    f_hi = cross(hi - 1, hi) if mag[hi] <= half else float(f[sel[-1]])
+    # parabolic interpolation of the peak on the (smoothed) magnitude
+    f0 = float(f[sel[i]])
+    y0, y1, y2 = mag[i - 1], mag[i], mag[i + 1]
+    den = y0 - 2 * y1 + y2
+    if den < 0:
+        f0 += 0.5 * (y0 - y2) / den * float(f[sel[i + 1]] - f[sel[i]])
+    width = max(f_hi - f_lo, float(f[1] - f[0]))
+    q = float(np.clip(f0 / width, 0.5, 1e4))
+    return f0, q
+
+
+def _noise_power(seg: NDArray[np.float64], n_out: int, rate_hz: float,
+                 present_until: NDArray[np.float64] | None = None,
+                 offset: int = 0, shape: NDArray[np.float64] | None = None
+                 ) -> NDArray[np.float64]:
+    """Noise power per unit window energy, E|FFT(n * w)|^2 / sum(w^2), of the
+    noise-only stretch ``seg``, on an ``n_out``-point rfft grid.
+
+    Averaged Hann periodograms of half-overlapping sub-segments. When
+    ``present_until`` is given (for each sub-segment bin, the window sample up
+    to which noise at that frequency exists; ``offset`` is where ``seg`` starts
+    in the window), a sub-segment counts for a frequency only where it lies
+    wholly before that limit; frequencies no sub-segment covers take the value
+    of the nearest covered frequency.
+    """
+    m = int(min(max(256, seg.size // 8), 8192, seg.size))
+    m -= m % 2
+    w = np.hanning(m)
+    f_seg = np.fft.rfftfreq(m, 1 / rate_hz)
+    acc = np.zeros(m // 2 + 1)
+    count = np.zeros(m // 2 + 1)
+    limit = None if present_until is None else np.interp(
+        f_seg, np.fft.rfftfreq(n_out, 1 / rate_hz), present_until)
+    for s in range(0, seg.size - m + 1, m // 2):
+        p = np.abs(np.fft.rfft(seg[s:s + m] * w)) ** 2
+        use = np.ones(f_seg.size, bool) if limit is None else (offset + s + m <= limit)
+        acc[use] += p[use]
+        count[use] += 1
+    ok = count > 0
+    f_out = np.fft.rfftfreq(n_out, 1 / rate_hz)
+    if not np.any(ok):
+        return np.full(f_out.size, np.nan)
+    g = np.ones(f_seg.size) if shape is None else np.maximum(
+        np.interp(f_seg, f_out, shape), 1e-300)
+    rel = np.interp(f_seg, f_seg[ok], acc[ok] / count[ok] / g[ok])
+    return np.interp(f_out, f_seg, rel * g) / float(np.sum(w**2))
+
+
+#: The response starts where its envelope first rises above this fraction of
+#: its peak (searching back from the peak).
+ONSET_THRESHOLD = 1e-4
+
+
+def find_onset(ir: NDArray[np.float64], rate_hz: float, max_lookback: int) -> int:
+    """Index where a (circular) impulse response starts: search back from its
+    peak, at most ``max_lookback`` samples, to where its envelope (a 0.5 ms
+    running maximum of |ir|) falls below ``ONSET_THRESHOLD`` of the peak or
+    below three times the noise envelope (the median envelope over the first
+    half of the look-back stretch, well before the response). The peak alone is not the
+    start: band limits and loudspeakers make a causal response rise well before
+    its maximum."""
+    from scipy.ndimage import maximum_filter1d
+
+    a = np.abs(ir)
+    i_peak = int(np.argmax(a))
+    look = int(max(1, min(max_lookback, a.size // 4)))
+    idx = (i_peak - look + np.arange(look + 1)) % a.size
+    env = maximum_filter1d(a[idx], size=max(3, int(5e-4 * rate_hz)), mode="nearest")
+    noise = float(np.median(env[: max(1, look // 2)]))
+    thr = max(ONSET_THRESHOLD * a[i_peak], 3.0 * noise)
+    below = np.flatnonzero(env < thr)
+    if below.size == 0:
+        return i_peak - look
+    return i_peak - look + int(below[-1])
+
+
+def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64],
+                   rate_hz: float, sweep: Sweep, *, window_s: float | None = None
+                   ) -> TransferFunction:
+    """H(f) from a swept-sine recording of both microphones.
+
+    Steps: linear deconvolution of each channel by the sweep's regularised
+    inverse (:func:`characterize.excitation.inverse_spectrum`), on an FFT
+    longer than recording plus sweep so that the harmonic images fall at
+    negative times (Farina 2000); one window on both impulse responses from
+    ``PRE_ONSET_S`` before the direct sound for ``WINDOW_TIME_CONSTANTS``
+    ringing time constants (estimated from a first, long window) or as long as
+    the harmonic images allow; the ratio of the two spectra. The per-bin noise
+    comes from the impulse responses' noise-only stretch after the ringing.
+    """
+    p = sweep.params
+    n = inside.size
+    n_fft = _fast_len(n + sweep.samples.size)
+    xinv = inverse_spectrum(sweep, n_fft)
+    ir_in = np.fft.irfft(np.fft.rfft(inside, n_fft) * xinv, n_fft)
+    ir_out = np.fft.irfft(np.fft.rfft(outside, n_fft) * xinv, n_fft)
+    adv2 = int(p.harmonic_advance_s(2) * rate_hz)
+    onset = find_onset(ir_out, rate_hz, max_lookback=adv2 // 2)
+    pre = int(round(PRE_ONSET_S * rate_hz))
+    pre = max(8, min(pre, adv2 // 2))
+    adv_max = int(p.harmonic_advance_s(HARMONIC_ORDERS_EXCLUDED) * rate_hz)
+    l_max = n_fft - adv_max - 2 * pre
+    # the response cannot be longer than the recording after the onset
+    l_max = min(l_max, n - onset + pre + int(0.5 * sweep.samples.size))
+    if l_max < int(MIN_WINDOW_S * rate_hz):
+        raise FitError("the sweep is too short or fast: its harmonic images leave less than "
+                       f"{MIN_WINDOW_S * 1000:.0f} ms for the response")
+    start = onset - pre
+    idx_all = (start + np.arange(l_max)) % n_fft
+    seg_in, seg_out = ir_in[idx_all], ir_out[idx_all]
+    band = usable_band(p)
+
+    def spectra(length: int) -> tuple[NDArray[np.float64], NDArray[np.complex128],
+                                      NDArray[np.complex128], NDArray[np.float64]]:
+        w = np.ones(length)
+        w[:pre] = 0.5 * (1 - np.cos(np.pi * np.arange(pre) / pre))
+        n_taper = max(2, length // 20)
+        w[-n_taper:] = 0.5 * (1 + np.cos(np.pi * (np.arange(n_taper) + 1) / n_taper))
+        fi = np.fft.rfft(seg_in[:length] * w)
+        fo = np.fft.rfft(seg_out[:length] * w)
+        return np.fft.rfftfreq(length, 1 / rate_hz), fi, fo, w
+
+    f0_est: float | None = None
+    tau = math.nan
+    if window_s is None:
+        f, fi, fo, _ = spectra(l_max)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            h0 = fi / fo
+        f0_est, q_est = estimate_peak(f, h0, band)
+        tau = q_est / (math.pi * f0_est)
+        length = int(min(l_max, max(WINDOW_TIME_CONSTANTS * tau, MIN_WINDOW_S) * rate_hz))
+    else:
+        length = int(round(window_s * rate_hz))
+        if length < 4 * pre or length > l_max:
+            raise FitError(f"window of {window_s * 1000:.0f} ms is outside what this recording "
+                           f"allows ({4 * pre / rate_hz * 1000:.0f} to "
+                           f"{l_max / rate_hz * 1000:.0f} ms)")
+    f, fi, fo, w = spectra(length)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        h = fi / fo
+    if window_s is not None or f0_est is None:
+        try:
+            f0_est, q_est = estimate_peak(f, h, band)
+            tau = q_est / (math.pi * f0_est)
+        except FitError:
+            tau = math.nan
+    # Where noise exists in the impulse responses. After deconvolution, the
+    # response at lag t and frequency f comes from the recording at time
+    # t + t_f, t_f being when the sweep passed f (Farina 2000); past the
+    # recording's end there is neither signal nor noise at that frequency.
+    t_f = np.clip(p.duration_s * np.log(np.maximum(f, p.start_hz) / p.start_hz)
+                  / p.sweep_rate, 0.0, p.duration_s)
+    until = (n - t_f * rate_hz - start).astype(np.float64)  # in window samples
+    # noise-only stretch: after the ringing (25 tau), else the last quarter
+    n0 = pre + int(25 * tau * rate_hz) if math.isfinite(tau) else l_max
+    n0 = min(n0, int(0.75 * l_max))
+    w2_cum = np.concatenate([[0.0], np.cumsum(w**2)])
+    # window energy that meets noise, per bin
+    sw2 = w2_cum[np.clip(until, 0, length).astype(int)]
+    shape = np.abs(np.interp(f, np.fft.rfftfreq(n_fft, 1 / rate_hz), np.abs(xinv))) ** 2
+    pn_in = _noise_power(seg_in[n0:], length, rate_hz, until, n0, shape) * sw2
+    pn_out = _noise_power(seg_out[n0:], length, rate_hz, until, n0, shape) * sw2
+    with np.errstate(divide="ignore"):
+        fo2 = np.abs(fo) ** 2
+        noise_a = pn_in / fo2
+        noise_b = pn_out / fo2
+        ref_db = 10 * np.log10(np.maximum(fo2, 1e-300))
+    t = (np.arange(length) - pre) / rate_hz
+    win = WindowInfo(start_s=-pre / rate_hz, length_s=length / rate_hz,
+                     taper_in_s=pre / rate_hz, taper_out_s=max(2, length // 20) / rate_hz,
+                     time_constants=length / rate_hz / tau if math.isfinite(tau) else math.nan)
+    return TransferFunction(f, h, noise_a, noise_b, band, "sweep-deconvolution", ref_db,
+                            window=win, impulse_t_s=t, impulse_inside=seg_in[:length].copy(),
+                            impulse_outside=seg_out[:length].copy())
+
+
+def cross_spectral_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64],
+                            rate_hz: float, *, nperseg: int | None = None
+                            ) -> TransferFunction:
+    """H1 = G_xy/G_xx (x outside, y inside) with Welch averaging and coherence.
+
+    The per-bin random error of H1 (Bendat & Piersol, *Random Data*, 4th ed.
+    2010, ch. 9) is
+
+    .. math::
+
+        \\varepsilon \\approx \\sqrt{\\frac{1-\\gamma^2}{2\\gamma^2 (n_d - 1)}}
+
+    for the magnitude (relative) and about the same in radians for the phase,
+    so the complex noise variance is :math:`2\\varepsilon^2|H|^2`. ``n_d`` is
+    the number of averages, corrected for the 50 % overlap of Hann segments.
+    The segment length is chosen from a first pass so that the resolution is a
+    small fraction (1/``SEGMENT_BANDWIDTHS``) of the resonance's bandwidth.
+    """
+    from scipy.signal import csd, welch
+
+    n = inside.size
+
+    def estimate(m: int) -> TransferFunction:
+        m = int(min(m, n))
+        f, gxy = csd(outside, inside, fs=rate_hz, window="hann", nperseg=m)
+        _, gxx = welch(outside, fs=rate_hz, window="hann", nperseg=m)
+        _, gyy = welch(inside, fs=rate_hz, window="hann", nperseg=m)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            h1 = gxy / gxx
+            coh = np.clip(np.abs(gxy) ** 2 / (gxx * gyy), 0.0, 1.0)
+        n_seg = max(1, (n - m) // (m // 2) + 1)
+        n_d = max(1.5, n_seg / 1.056)  # Hann, 50 % overlap (Welch 1967 variance ratio)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            rel2 = (1 - coh) / (np.maximum(coh, 1e-12) * (n_d - 1))
+        rel2 = np.where(np.isfinite(rel2), rel2, 1e6)
+        level = np.max(gxx) if gxx.size else 1.0
+        excited = f[gxx > 1e-6 * level] if np.any(gxx > 0) else f
+        lo = max(float(excited[1]) if excited.size > 1 else f[1], 2 * rate_hz / m)
+        hi = min(float(excited[-1]) if excited.size else rate_hz / 2, 0.45 * rate_hz)
+        return TransferFunction(f, h1.astype(np.complex128), np.zeros_like(f), rel2, (lo, hi),
+                                "cross-spectral-h1",
+                                10 * np.log10(np.maximum(gxx, 1e-300)),
+                                coherence=coh, averages=int(n_seg))
+
+    if nperseg is not None:
+        return estimate(nperseg)
+    m0 = 2 ** int(np.clip(round(math.log2(max(n / 16, 256))), 8, 20))
+    first = estimate(m0)
+    f0, q = estimate_peak(first.freqs_hz, first.h, first.excited_band_hz)
+    want = SEGMENT_BANDWIDTHS * q / f0 * rate_hz
+    limit = 2 * n // (MIN_AVERAGES + 1)
+    m = int(2 ** math.ceil(math.log2(max(want, 256))))
+    while m > limit and m > 256:
+        m //= 2
+    return estimate(m)

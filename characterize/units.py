@@ -1,0 +1,150 @@
+"""Unit strings at the edges: the only module that imports pint.
+
+Every length, volume, temperature and pressure in a user file is a string
+with its unit ("18 mm", "355 mL", "21 degC", "101.325 kPa"). These helpers
+turn them into SI floats and raise :class:`InputError` naming the file and
+field when the string is not what was expected.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from functools import lru_cache
+from typing import Any
+
+from .errors import InputError
+
+# dimension name -> (SI unit, pint dimensionality string)
+_DIMENSIONS = {
+    "length": ("m", "[length]"),
+    "volume": ("m**3", "[length] ** 3"),
+    "area": ("m**2", "[length] ** 2"),
+    "pressure": ("Pa", "[mass] / [length] / [time] ** 2"),
+    "mass": ("kg", "[mass]"),
+    "frequency": ("Hz", "1 / [time]"),
+    "time": ("s", "[time]"),
+}
+
+_NUMBER_UNIT = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
+
+
+@lru_cache(maxsize=1)
+def _registry() -> Any:
+    import pint
+
+    return pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+
+
+def _split(text: str, source: str, field: str) -> tuple[float, str]:
+    if not isinstance(text, str):
+        raise InputError(source, field, f"expected a string with a unit, got {text!r}")
+    m = _NUMBER_UNIT.match(text)
+    if not m:
+        raise InputError(source, field, f"expected a number and a unit, got {text!r}")
+    value = float(m.group(1))
+    if not math.isfinite(value):
+        raise InputError(source, field, f"expected a finite number, got {text!r}")
+    return value, m.group(2)
+
+
+def parse_quantity(
+    text: Any, dimension: str, source: str, field: str, *, positive: bool = True
+) -> float:
+    """Parse ``"18 mm"``-style text into an SI float of the given dimension.
+
+    Parameters
+    ----------
+    text : str
+        Number followed by a unit.
+    dimension : str
+        One of ``length, volume, area, pressure, mass, frequency, time``.
+    source, field : str
+        File (or option) and field named in the error message.
+    positive : bool
+        Require a value > 0.
+    """
+    if dimension not in _DIMENSIONS:
+        raise ValueError(f"dimension must be one of {sorted(_DIMENSIONS)}, got {dimension!r}")
+    si_unit, _ = _DIMENSIONS[dimension]
+    value, unit = _split(text, source, field)
+    if not unit:
+        raise InputError(source, field, f"{text!r} has no unit; expected a {dimension} such as "
+                         f"{_EXAMPLES[dimension]!r}")
+    ureg = _registry()
+    try:
+        q = ureg.Quantity(value, unit)
+        si = q.to(si_unit).magnitude
+    except Exception:  # pint raises several types: undefined unit, dimensionality...
+        raise InputError(source, field, f"{text!r} is not a {dimension} (expected e.g. "
+                         f"{_EXAMPLES[dimension]!r})") from None
+    si = float(si)
+    if not math.isfinite(si):
+        raise InputError(source, field, f"{text!r} is not finite")
+    if positive and si <= 0:
+        raise InputError(source, field, f"{text!r} must be greater than zero")
+    return si
+
+
+def parse_temperature_c(text: Any, source: str, field: str) -> float:
+    """Parse a temperature string ("21 degC", "294 K", "70 degF") into degrees Celsius.
+
+    Temperatures are offset units, so the number and unit are split and the
+    quantity built with pint's constructor (not by multiplication).
+    Plain numbers (int/float) are taken as degrees Celsius.
+    """
+    if isinstance(text, bool):
+        raise InputError(source, field, f"expected a temperature such as '21 degC', got {text!r}")
+    if isinstance(text, (int, float)):
+        value_c = float(text)
+    else:
+        value, unit = _split(text, source, field)
+        if not unit:
+            raise InputError(source, field, f"{text!r} has no unit; expected e.g. '21 degC'")
+        unit = {"C": "degC", "°C": "degC", "F": "degF", "°F": "degF"}.get(unit, unit)
+        ureg = _registry()
+        try:
+            value_c = float(ureg.Quantity(value, unit).to("degC").magnitude)
+        except Exception:
+            raise InputError(source, field, f"{text!r} is not a temperature (expected e.g. "
+                             "'21 degC')") from None
+    if not math.isfinite(value_c) or value_c <= -273.15:
+        raise InputError(source, field, f"{text!r} is below absolute zero or not finite")
+    return value_c
+
+
+def parse_fraction(text: Any, source: str, field: str) -> float:
+    """Parse a relative humidity: a number in [0, 1] or an explicit percent ("45 %")."""
+    if isinstance(text, bool):
+        raise InputError(source, field, f"expected a fraction 0..1 or '45 %', got {text!r}")
+    if isinstance(text, str):
+        t = text.strip()
+        if t.endswith("%"):
+            try:
+                value = float(t[:-1]) / 100.0
+            except ValueError:
+                raise InputError(source, field, f"expected e.g. '45 %', got {text!r}") from None
+        else:
+            try:
+                value = float(t)
+            except ValueError:
+                raise InputError(source, field,
+                                 f"expected a fraction 0..1 or '45 %', got {text!r}") from None
+    elif isinstance(text, (int, float)):
+        value = float(text)
+    else:
+        raise InputError(source, field, f"expected a fraction 0..1 or '45 %', got {text!r}")
+    if not (0.0 <= value <= 1.0) or not math.isfinite(value):
+        raise InputError(source, field, f"{text!r} is outside 0..1 (write '45 %' for a percent)")
+    return value
+
+
+_EXAMPLES = {
+    "length": "18 mm",
+    "volume": "355 mL",
+    "area": "2.5 cm**2",
+    "pressure": "101.325 kPa",
+    "mass": "355 g",
+    "frequency": "256 Hz",
+    "time": "10 s",
+}
