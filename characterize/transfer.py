@@ -81,6 +81,9 @@ class TransferFunction:
     impulse_t_s: NDArray[np.float64] | None = None
     impulse_inside: NDArray[np.float64] | None = None
     impulse_outside: NDArray[np.float64] | None = None
+    #: Spectral smoothing the estimator applies to the true H (frequency offsets
+    #: in Hz and weights summing to 1), or None. The fit applies it to the model.
+    kernel: tuple[NDArray[np.float64], NDArray[np.float64]] | None = None
 
     def sigma(self, h_abs: NDArray[np.float64] | None = None) -> NDArray[np.float64]:
         """Per-bin standard deviation of the complex noise (sqrt of E|n|^2)."""
@@ -287,9 +290,17 @@ def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64],
     t_f = np.clip(p.duration_s * np.log(np.maximum(f, p.start_hz) / p.start_hz)
                   / p.sweep_rate, 0.0, p.duration_s)
     until = (n - t_f * rate_hz - start).astype(np.float64)  # in window samples
-    # noise-only stretch: after the ringing (25 tau), else the last quarter
-    n0 = pre + int(25 * tau * rate_hz) if math.isfinite(tau) else l_max
-    n0 = min(n0, int(0.75 * l_max))
+    # noise-only stretch: after the ringing (25, else 15, else 10 time constants),
+    # where the recording still holds noise at the resonance
+    m_seg = 2 * min(8192, max(256, (l_max - pre) // 16))
+    n0 = int(0.75 * l_max)
+    if math.isfinite(tau) and f0_est is not None:
+        until_f0 = float(np.interp(f0_est, f, until))
+        for k in (25.0, 15.0, 10.0):
+            cand = pre + int(k * tau * rate_hz)
+            if min(until_f0, l_max) - cand >= m_seg:
+                n0 = cand
+                break
     w2_cum = np.concatenate([[0.0], np.cumsum(w**2)])
     # window energy that meets noise, per bin
     sw2 = w2_cum[np.clip(until, 0, length).astype(int)]
@@ -308,6 +319,29 @@ def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64],
     return TransferFunction(f, h, noise_a, noise_b, band, "sweep-deconvolution", ref_db,
                             window=win, impulse_t_s=t, impulse_inside=seg_in[:length].copy(),
                             impulse_outside=seg_out[:length].copy())
+
+
+def hann_power_kernel(nperseg: int, rate_hz: float, oversample: int = 16,
+                      half_width_bins: int = 6
+                      ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """The smoothing a Hann-windowed Welch estimate applies to a transfer function.
+
+    For broadband excitation with a locally flat spectrum, the expected cross-
+    and auto-spectra are the true ones convolved with the window's power
+    spectrum |W(f)|^2, so E[H1] ~ (H * |W|^2) / sum |W|^2 (Bendat & Piersol,
+    *Random Data*, 4th ed. 2010, §8.5 on resolution bias; Harris, "On the use
+    of windows for harmonic analysis with the discrete Fourier transform",
+    Proc. IEEE 66(1), 1978, for the Hann window). Returns frequency offsets (Hz)
+    and weights on a grid ``oversample`` times finer than the bins, over
+    +-``half_width_bins`` bins.
+    """
+    w = np.hanning(nperseg)
+    n_big = nperseg * oversample
+    spec = np.abs(np.fft.fft(w, n_big)) ** 2
+    k = np.arange(-half_width_bins * oversample, half_width_bins * oversample + 1)
+    weights = spec[k % n_big]
+    weights = weights / weights.sum()
+    return k * rate_hz / n_big, weights
 
 
 def cross_spectral_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64],
@@ -352,7 +386,8 @@ def cross_spectral_transfer(inside: NDArray[np.float64], outside: NDArray[np.flo
         return TransferFunction(f, h1.astype(np.complex128), np.zeros_like(f), rel2, (lo, hi),
                                 "cross-spectral-h1",
                                 10 * np.log10(np.maximum(gxx, 1e-300)),
-                                coherence=coh, averages=int(n_seg))
+                                coherence=coh, averages=int(n_seg),
+                                kernel=hann_power_kernel(m, rate_hz))
 
     if nperseg is not None:
         return estimate(nperseg)

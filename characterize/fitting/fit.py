@@ -48,7 +48,8 @@ class FitResult:
     n_points: int
     chi2: float
     reduced_chi2: float
-    stderr_scale: float  # factor applied to the covariance errors (>= 1)
+    stderr_scale: float  # factor applied to the covariance errors
+    weighting: str  # "noise-estimate" or "residuals" (no noise estimate available)
     correlation_f0_q: float
     nfev: int
 
@@ -76,8 +77,7 @@ def auto_band(f0_hz: float, q: float, limits: tuple[float, float]) -> tuple[floa
 
 def _select(tf: TransferFunction, band: tuple[float, float]) -> NDArray[np.intp]:
     f = tf.freqs_hz
-    idx = np.flatnonzero((f >= band[0]) & (f <= band[1]) & np.isfinite(tf.h)
-                         & np.isfinite(tf.noise_a) & np.isfinite(tf.noise_b))
+    idx = np.flatnonzero((f >= band[0]) & (f <= band[1]) & np.isfinite(tf.h))
     if idx.size > MAX_POINTS:
         idx = idx[np.linspace(0, idx.size - 1, MAX_POINTS).round().astype(int)]
     return idx
@@ -112,6 +112,56 @@ def initial_delay_and_sign(f: NDArray[np.float64], h: NDArray[np.complex128],
     return tau, sign, abs(a)
 
 
+Kernel = tuple[NDArray[np.float64], NDArray[np.float64]] | None
+
+
+def model_at(p: NDArray[np.float64], f: NDArray[np.float64], sign: float,
+             kernel: Kernel = None) -> NDArray[np.complex128]:
+    """The model at ``p = [f0_hz, q, gain, delay_s]``, smoothed by the
+    estimator's spectral ``kernel`` (offsets Hz, weights) when there is one."""
+    if kernel is None:
+        return inside_outside(f, p[0], p[1], p[2], p[3], sign)
+    off, wts = kernel
+    grid = f[:, None] + off[None, :]
+    return inside_outside(grid, p[0], p[1], p[2], p[3], sign) @ wts
+
+
+def residual_at(p: NDArray[np.float64], f: NDArray[np.float64], h: NDArray[np.complex128],
+                sig: NDArray[np.float64], sign: float, kernel: Kernel = None
+                ) -> NDArray[np.float64]:
+    """Standardised residuals (real parts, then imaginary parts) at parameters
+    ``p = [f0_hz, q, gain, delay_s]``."""
+    d = (h - model_at(p, f, sign, kernel)) / sig
+    return np.concatenate([d.real, d.imag])
+
+
+def covariance(fun: object, p: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Parameter covariance (J^T J)^-1 from a central-difference Jacobian of the
+    standardised residuals ``fun(p)``; for Gaussian noise this is the inverse
+    Fisher information, i.e. the Cramer-Rao bound at ``p`` (Kay 1993, ch. 3).
+
+    Raises :class:`FitError` when J^T J is singular (a parameter the data do
+    not determine).
+    """
+    p = np.asarray(p, dtype=np.float64)
+    steps = np.maximum(np.abs(p) * 1e-6, [1e-9, 1e-9, 1e-12, 1e-10])
+    cols = []
+    for i, s in enumerate(steps):
+        e = np.zeros_like(p)
+        e[i] = s
+        cols.append((fun(p + e) - fun(p - e)) / (2 * s))  # type: ignore[operator]
+    jac = np.stack(cols, axis=1)
+    fisher = jac.T @ jac
+    try:
+        cov = np.linalg.inv(fisher)
+    except np.linalg.LinAlgError:
+        raise FitError("the data do not determine all parameters (singular Fisher matrix)"
+                       ) from None
+    if not np.all(np.isfinite(cov)) or np.any(np.diag(cov) <= 0):
+        raise FitError("the data do not determine all parameters (singular Fisher matrix)")
+    return np.asarray(cov)
+
+
 def fit_transfer(tf: TransferFunction, band_hz: tuple[float, float] | None = None
                  ) -> FitResult:
     """Fit ``sign * G * R(f; f0, Q) * exp(-j 2 pi f tau)`` to ``tf``.
@@ -139,7 +189,9 @@ def fit_transfer(tf: TransferFunction, band_hz: tuple[float, float] | None = Non
     if wide.size < MIN_POINTS:
         wide = _select(tf, band)
     sig_w = tf.sigma()[wide]
-    w = 1.0 / np.maximum(sig_w, 1e-30) ** 2
+    w = np.where(np.isfinite(sig_w), 1.0 / np.maximum(sig_w, 1e-30) ** 2, 0.0)
+    if not np.any(w > 0):
+        w = np.ones_like(sig_w)
     tau0, sign, g_lin = initial_delay_and_sign(tf.freqs_hz[wide], tf.h[wide], w, f0, q)
     g0 = g_lin
 
@@ -155,6 +207,9 @@ def fit_transfer(tf: TransferFunction, band_hz: tuple[float, float] | None = Non
         # per-bin noise with |H| from the previous pass's model (less noisy than data)
         h_abs = np.abs(h) if fitted is None else np.abs(fitted[2] * oscillator(f, *fitted[:2]))
         sig = np.sqrt(tf.noise_a[idx] + h_abs**2 * tf.noise_b[idx]) / math.sqrt(2)
+        weighted = bool(np.all(np.isfinite(sig)))
+        if not weighted:  # no noise estimate: equal weights, errors from the residuals
+            sig = np.ones_like(h_abs)
         sig = np.maximum(sig, 1e-30)
 
         params = lmfit.Parameters()
@@ -166,30 +221,31 @@ def fit_transfer(tf: TransferFunction, band_hz: tuple[float, float] | None = Non
         def residual(p: lmfit.Parameters, f: NDArray[np.float64] = f,
                      h: NDArray[np.complex128] = h, sig: NDArray[np.float64] = sig
                      ) -> NDArray[np.float64]:
-            m = inside_outside(f, p["f0"].value, p["q"].value, p["gain"].value,
-                               p["delay"].value, sign)
-            d = (h - m) / sig
-            return np.concatenate([d.real, d.imag])
+            v = np.array([p["f0"].value, p["q"].value, p["gain"].value, p["delay"].value])
+            return residual_at(v, f, h, sig, sign, tf.kernel)
 
         mini = lmfit.Minimizer(residual, params, scale_covar=False, nan_policy="raise")
-        result = mini.minimize(method="leastsq")
+        result = mini.minimize(method="least_squares", x_scale="jac", ftol=1e-12, xtol=1e-12, gtol=1e-12)
         if not result.success:
             raise FitError(f"the fit did not converge ({result.message})")
         pv = result.params
         f0, q, g0, tau0 = (pv["f0"].value, pv["q"].value, pv["gain"].value, pv["delay"].value)
         fitted = (f0, q, g0)
+        used_band = band
         if band_hz is None:
             band = auto_band(f0, q, excited)
     assert result is not None
-    if result.covar is None or not result.errorbars:
-        raise FitError("the fit converged but its covariance could not be estimated "
-                       "(parameters at a bound or degenerate)")
-    dof = max(1, result.ndata - result.nvarys)
-    redchi = float(result.chisqr / dof)
-    scale = math.sqrt(max(1.0, redchi))
     pv = result.params
-    names = list(result.var_names)
-    cov = np.asarray(result.covar)
+    names = ["f0", "q", "gain", "delay"]
+    p_hat = np.array([pv[k].value for k in names])
+    cov = covariance(lambda p: residual_at(p, f, h, sig, sign, tf.kernel), p_hat)
+    chi2 = float(np.sum(residual_at(p_hat, f, h, sig, sign, tf.kernel) ** 2))
+    dof = max(1, 2 * f.size - len(names))
+    redchi = chi2 / dof
+    # Honest errors: with a noise estimate, the covariance is scaled up (never
+    # down) when the residuals say the noise was underestimated; without one,
+    # the residuals set the scale.
+    scale = math.sqrt(max(1.0, redchi)) if weighted else math.sqrt(redchi)
     i_f, i_q = names.index("f0"), names.index("q")
     corr = float(cov[i_f, i_q] / math.sqrt(cov[i_f, i_f] * cov[i_q, i_q]))
 
@@ -197,13 +253,15 @@ def fit_transfer(tf: TransferFunction, band_hz: tuple[float, float] | None = Non
         k = names.index(name)
         return float(math.sqrt(cov[k, k]) * scale)
 
+
     return FitResult(
         f0_hz=float(pv["f0"].value), f0_stderr_hz=se("f0"),
         q=float(pv["q"].value), q_stderr=se("q"),
         gain=float(pv["gain"].value), gain_stderr=se("gain"),
         delay_s=float(pv["delay"].value), delay_stderr_s=se("delay"),
         polarity_inverted=sign < 0,
-        band_hz=(float(band[0]), float(band[1])) if band_hz is None else band_hz,
-        n_points=int(result.ndata // 2), chi2=float(result.chisqr), reduced_chi2=redchi,
-        stderr_scale=scale, correlation_f0_q=corr, nfev=int(result.nfev),
+        band_hz=(float(used_band[0]), float(used_band[1])),
+        n_points=int(f.size), chi2=chi2, reduced_chi2=redchi,
+        stderr_scale=scale, weighting="noise-estimate" if weighted else "residuals",
+        correlation_f0_q=corr, nfev=int(result.nfev),
     )
