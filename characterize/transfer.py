@@ -85,10 +85,13 @@ class TransferFunction:
     #: in Hz and weights summing to 1), or None. The fit applies it to the model.
     kernel: tuple[NDArray[np.float64], NDArray[np.float64]] | None = None
 
-    def sigma(self, h_abs: NDArray[np.float64] | None = None) -> NDArray[np.float64]:
-        """Per-bin standard deviation of the complex noise (sqrt of E|n|^2)."""
-        a = np.abs(self.h) if h_abs is None else np.asarray(h_abs)
-        return np.sqrt(self.noise_a + a**2 * self.noise_b)
+    def sigma(self, h_abs: NDArray[np.float64] | None = None,
+              idx: NDArray[np.intp] | None = None) -> NDArray[np.float64]:
+        """Per-bin standard deviation of the complex noise (sqrt of E|n|^2), at
+        bins ``idx`` (default all), for |H| = ``h_abs`` (default the data's)."""
+        sel = slice(None) if idx is None else idx
+        a = np.abs(self.h[sel]) if h_abs is None else np.asarray(h_abs)
+        return np.sqrt(self.noise_a[sel] + a**2 * self.noise_b[sel])
 
     @property
     def resolution_hz(self) -> float:

@@ -188,7 +188,7 @@ def fit_transfer(tf: TransferFunction, band_hz: tuple[float, float] | None = Non
     wide = _select(tf, (max(excited[0], f0 / 3), min(excited[1], 3 * f0)))
     if wide.size < MIN_POINTS:
         wide = _select(tf, band)
-    sig_w = tf.sigma()[wide]
+    sig_w = tf.sigma(idx=wide)
     w = np.where(np.isfinite(sig_w), 1.0 / np.maximum(sig_w, 1e-30) ** 2, 0.0)
     if not np.any(w > 0):
         w = np.ones_like(sig_w)
@@ -206,7 +206,7 @@ def fit_transfer(tf: TransferFunction, band_hz: tuple[float, float] | None = Non
         h = tf.h[idx]
         # per-bin noise with |H| from the previous pass's model (less noisy than data)
         h_abs = np.abs(h) if fitted is None else np.abs(fitted[2] * oscillator(f, *fitted[:2]))
-        sig = np.sqrt(tf.noise_a[idx] + h_abs**2 * tf.noise_b[idx]) / math.sqrt(2)
+        sig = tf.sigma(h_abs, idx) / math.sqrt(2)
         weighted = bool(np.all(np.isfinite(sig)))
         if not weighted:  # no noise estimate: equal weights, errors from the residuals
             sig = np.ones_like(h_abs)

@@ -1,0 +1,142 @@
+"""Checks: results in, flags out (pure functions, no I/O).
+
+Every flag has a stable ``code``, a ``severity`` (info, warning, error) and a
+one-line ``message`` with the numbers. Default thresholds are the named
+constants below; docs/checks.md documents each.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:
+    from .audio import ClipReport
+    from .fitting.fit import FitResult
+    from .physics.helmholtz import Derived, Prediction
+    from .transfer import TransferFunction
+
+SEVERITIES = ("info", "warning", "error")
+
+#: Relative f0 mismatch against the lumped prediction that raises a warning. The
+#: lumped formula alone runs a few percent high for bottle-like cavities, hence 5 %.
+F0_TOLERANCE = 0.05
+#: Reduced chi-square above which the residuals are inconsistent with the noise.
+POOR_FIT_REDUCED_CHI2 = 3.0
+#: Relative standard errors above which a fit is too loose to use.
+POOR_FIT_F0_REL_STDERR = 0.01
+POOR_FIT_Q_REL_STDERR = 0.25
+#: The resonance must sit this many half-power half-widths f0/(2Q) inside the excited band.
+OUT_OF_BAND_HALF_WIDTHS = 4.0
+#: Window shorter than this many ringing time constants Q/(pi f0) biases Q low.
+MIN_WINDOW_TIME_CONSTANTS = 7.0
+
+
+@dataclass(frozen=True, slots=True)
+class Flag:
+    code: str
+    severity: str
+    message: str
+
+    def __post_init__(self) -> None:
+        if self.severity not in SEVERITIES:
+            raise ValueError(f"severity must be one of {list(SEVERITIES)}, got {self.severity!r}")
+
+    def to_dict(self) -> dict[str, str]:
+        return asdict(self)
+
+
+def check_f0_mismatch(fit: FitResult, prediction: Prediction,
+                      tolerance: float = F0_TOLERANCE) -> list[Flag]:
+    rel = fit.f0_hz / prediction.f0_hz - 1
+    if abs(rel) <= tolerance:
+        return []
+    return [Flag("f0-mismatch", "warning",
+                 f"measured f0 {fit.f0_hz:.2f} Hz is {100 * rel:+.1f} % from the predicted "
+                 f"{prediction.f0_hz:.2f} Hz (tolerance {100 * tolerance:.1f} %)")]
+
+
+def check_end_correction(derived: Derived, plausible: tuple[float, float]) -> list[Flag]:
+    r = derived.end_correction_over_radius
+    if plausible[0] <= r <= plausible[1]:
+        return []
+    return [Flag("end-correction-implausible", "warning",
+                 f"measured end correction is {r:.2f} neck radii "
+                 f"({1000 * derived.end_correction_m:.1f} mm); plausible is "
+                 f"{plausible[0]:g} to {plausible[1]:g} radii: check the neck length, "
+                 "diameter and volume in the object file")]
+
+
+def check_fit_quality(fit: FitResult) -> list[Flag]:
+    reasons = []
+    if fit.reduced_chi2 > POOR_FIT_REDUCED_CHI2:
+        reasons.append(f"reduced chi-square {fit.reduced_chi2:.1f} > {POOR_FIT_REDUCED_CHI2:g} "
+                       "(residuals larger than the noise: the model does not describe the data)")
+    if fit.f0_stderr_hz > POOR_FIT_F0_REL_STDERR * fit.f0_hz:
+        reasons.append(f"f0 standard error {fit.f0_stderr_hz:.3g} Hz is over "
+                       f"{100 * POOR_FIT_F0_REL_STDERR:g} % of f0")
+    if fit.q_stderr > POOR_FIT_Q_REL_STDERR * fit.q:
+        reasons.append(f"Q standard error {fit.q_stderr:.3g} is over "
+                       f"{100 * POOR_FIT_Q_REL_STDERR:g} % of Q")
+    if not reasons:
+        return []
+    return [Flag("poor-fit", "warning", "; ".join(reasons))]
+
+
+def check_clipping(reports: list[ClipReport], role: dict[int, str]) -> list[Flag]:
+    out = []
+    for r in reports:
+        if r.clipped:
+            out.append(Flag("clipping", "warning",
+                            f"channel {r.channel} ({role.get(r.channel, '?')}) has {r.runs} "
+                            f"clipped run(s), {r.clipped_samples} samples at full scale "
+                            f"(peak {r.peak_dbfs:.2f} dBFS): lower the input gain or the drive"))
+    return out
+
+
+def check_in_band(fit: FitResult, band_hz: tuple[float, float]) -> list[Flag]:
+    half = fit.f0_hz / (2 * fit.q)
+    lo = fit.f0_hz - OUT_OF_BAND_HALF_WIDTHS * half
+    hi = fit.f0_hz + OUT_OF_BAND_HALF_WIDTHS * half
+    if lo >= band_hz[0] and hi <= band_hz[1]:
+        return []
+    return [Flag("out-of-band", "warning",
+                 f"the resonance ({lo:.1f} to {hi:.1f} Hz, {OUT_OF_BAND_HALF_WIDTHS:g} half-"
+                 f"widths each side of f0) is not well inside the excited band "
+                 f"{band_hz[0]:.1f} to {band_hz[1]:.1f} Hz: widen the sweep or the excitation")]
+
+
+def check_window(tf: TransferFunction, fit: FitResult) -> list[Flag]:
+    if tf.window is None:
+        return []
+    tau = fit.q / (math.pi * fit.f0_hz)
+    n_tau = tf.window.length_s / tau
+    if n_tau >= MIN_WINDOW_TIME_CONSTANTS:
+        return []
+    return [Flag("window-too-short", "warning",
+                 f"the response window ({1000 * tf.window.length_s:.0f} ms) holds only "
+                 f"{n_tau:.1f} ringing time constants Q/(pi f0) = {1000 * tau:.0f} ms; "
+                 f"Q reads low below {MIN_WINDOW_TIME_CONSTANTS:g}: record a longer tail")]
+
+
+def check_polarity(fit: FitResult) -> list[Flag]:
+    if not fit.polarity_inverted:
+        return []
+    return [Flag("polarity-inverted", "info",
+                 "the inside channel's polarity is inverted relative to the outside one "
+                 "(wiring or microphone polarity); the gain is reported as a magnitude")]
+
+
+def check_weighting(fit: FitResult) -> list[Flag]:
+    if fit.weighting == "noise-estimate":
+        return []
+    return [Flag("no-noise-estimate", "info",
+                 "no noise-only stretch was found to weight the fit; standard errors come "
+                 "from the residuals (record a longer silent tail after the sweep)")]
+
+
+def worst_severity(flags: list[Flag]) -> str | None:
+    if not flags:
+        return None
+    return max(flags, key=lambda f: SEVERITIES.index(f.severity)).severity

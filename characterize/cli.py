@@ -1,0 +1,208 @@
+"""Command line: a thin click shell over the library.
+
+Heavy modules (numpy, scipy, lmfit, matplotlib, soundfile) are imported inside
+the commands, so ``characterize --help`` starts fast.
+"""
+
+from __future__ import annotations
+
+import functools
+import sys
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+import click
+
+from . import __version__
+from .errors import CharacterizeError, FitError, InputError
+
+
+def _fail(message: str, code: int) -> None:
+    click.echo(f"characterize: {message}", err=True)
+    sys.exit(code)
+
+
+def handles_errors(fn: Callable[..., Any]) -> Callable[..., Any]:
+    """Turn library errors into one line and an exit status (2 input, 1 no fit)."""
+
+    @functools.wraps(fn)
+    def wrapper(*args: Any, **kwargs: Any) -> Any:
+        try:
+            return fn(*args, **kwargs)
+        except InputError as exc:
+            _fail(f"error: {exc}", 2)
+        except FitError as exc:
+            _fail(f"no fit: {exc}", 1)
+        except CharacterizeError as exc:
+            _fail(f"error: {exc}", 2)
+        except MemoryError:
+            _fail("error: not enough memory for this recording", 2)
+
+    return wrapper
+
+
+class Fraction(click.ParamType):
+    """A fraction 0..1 or an explicit percent ("45 %")."""
+
+    name = "FRACTION"
+
+    def convert(self, value: Any, param: Any, ctx: Any) -> float:
+        from .units import parse_fraction
+
+        if isinstance(value, float):
+            return value
+        try:
+            return parse_fraction(value, "option", f"--{param.name}" if param else "value")
+        except InputError as exc:
+            self.fail(exc.expected, param, ctx)
+
+
+class Quantity(click.ParamType):
+    """A number with a unit ("101.325 kPa"), or a bare number in the SI unit."""
+
+    def __init__(self, dimension: str, si: str) -> None:
+        self.dimension, self.si = dimension, si
+        self.name = dimension.upper()
+
+    def convert(self, value: Any, param: Any, ctx: Any) -> float:
+        from .units import parse_quantity
+
+        if isinstance(value, float):
+            return value
+        try:
+            return float(value)
+        except ValueError:
+            pass
+        try:
+            return parse_quantity(value, self.dimension, "option", param.name if param else "")
+        except InputError as exc:
+            self.fail(exc.expected, param, ctx)
+
+
+@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(__version__, prog_name="characterize")
+def main() -> None:
+    """Measure acoustic resonators: sweep, record, fit f0 and Q, compare with geometry."""
+
+
+@main.command()
+@click.argument("out", type=click.Path(dir_okay=False, path_type=Path))
+@click.option("--start", "start_hz", type=float, default=20.0, show_default=True,
+              help="Start frequency (Hz).")
+@click.option("--stop", "stop_hz", type=float, default=4000.0, show_default=True,
+              help="Stop frequency (Hz).")
+@click.option("--duration", "duration_s", type=float, default=5.0, show_default=True,
+              help="Sweep duration (s), fades included.")
+@click.option("--rate", "rate_hz", type=int, default=48000, show_default=True,
+              help="Sample rate (Hz).")
+@click.option("--level", "level_dbfs", type=float, default=-12.0, show_default=True,
+              help="Peak level (dBFS). Start low and step up.")
+@click.option("--fade-in", "fade_in_s", type=float, default=0.05, show_default=True,
+              help="Half-Hann fade-in (s).")
+@click.option("--fade-out", "fade_out_s", type=float, default=0.01, show_default=True,
+              help="Half-Hann fade-out (s).")
+@click.option("--tail", "tail_s", type=float, default=2.0, show_default=True,
+              help="Silence after the sweep (s): longer than the ringing, Q/(pi f0) x 10.")
+@click.option("--force", is_flag=True, help="Overwrite OUT and its sidecar.")
+@handles_errors
+def sweep(out: Path, force: bool, **kw: Any) -> None:
+    """Write an exponential sine sweep OUT.wav and its sidecar OUT.toml."""
+    import soundfile as sf
+
+    from .excitation import SAFETY_CAUTION, SweepParams, make_sweep, sidecar_path, sidecar_text
+    from .fileio import atomic_write, atomic_write_text, check_writable
+
+    if out.suffix.lower() != ".wav":
+        raise InputError(str(out), None, "the sweep is written as WAV: give a .wav name")
+    side = sidecar_path(out)
+    check_writable(out, force=force)
+    check_writable(side, force=force, what="sidecar")
+    params = SweepParams(
+        start_hz=kw["start_hz"], stop_hz=kw["stop_hz"], duration_s=kw["duration_s"],
+        rate_hz=float(kw["rate_hz"]), level_dbfs=kw["level_dbfs"], fade_in_s=kw["fade_in_s"],
+        fade_out_s=kw["fade_out_s"], tail_s=kw["tail_s"])
+    from .excitation import validate_params
+
+    validate_params(params, "options")
+    s = make_sweep(params)
+    atomic_write(out, lambda tmp: sf.write(tmp, s.samples, int(params.rate_hz),
+                                           subtype="PCM_24", format="WAV"))
+    atomic_write_text(side, sidecar_text(params))
+    click.echo(f"wrote {out} ({params.duration_s:g} s sweep {params.start_hz:g} to "
+               f"{params.stop_hz:g} Hz at {params.level_dbfs:g} dBFS, {params.tail_s:g} s tail) "
+               f"and {side}")
+    click.echo(SAFETY_CAUTION, err=True)
+
+
+@main.command()
+@click.argument("recording", type=click.Path(path_type=Path))
+@click.option("--object", "object_path", type=click.Path(path_type=Path),
+              help="Object file (TOML) with the geometry.")
+@click.option("--sweep", "sweep_path", type=click.Path(path_type=Path),
+              help="The sweep WAV that was played (deconvolution); without it, H1.")
+@click.option("--inside", type=int, default=1, show_default=True,
+              help="Channel (from 1) of the microphone inside the cavity.")
+@click.option("--outside", type=int, default=2, show_default=True,
+              help="Channel (from 1) of the microphone just outside the mouth.")
+@click.option("--band", type=(float, float), default=None, metavar="LO HI",
+              help="Fit exactly this band (Hz); default: found around the peak.")
+@click.option("--temperature", "temperature_c", type=float, default=None,
+              help="Air temperature (°C); overrides the object file.")
+@click.option("--humidity", "relative_humidity", type=Fraction(), default=None,
+              help="Relative humidity, 0..1 or '45 %'; overrides the object file.")
+@click.option("--pressure", "pressure_pa", type=Quantity("pressure", "Pa"), default=None,
+              help="Static pressure ('101.3 kPa' or Pa); overrides the object file.")
+@click.option("--tolerance", type=float, default=None,
+              help="f0 mismatch that raises a warning, as a fraction [default: 0.05].")
+@click.option("--window", "window_ms", type=float, default=None,
+              help="Impulse-response window (ms) on the sweep path; default automatic.")
+@click.option("--out", "out_dir", type=click.Path(file_okay=False, path_type=Path),
+              help="Write DIR/result.json and DIR/response.png.")
+@click.option("--json", "as_json", is_flag=True, help="Print the result document.")
+@click.option("--strict", is_flag=True, help="Exit 1 when any warning or error flag is raised.")
+@click.option("--force", is_flag=True, help="Overwrite an existing result in --out.")
+@handles_errors
+def fit(recording: Path, object_path: Path | None, sweep_path: Path | None, inside: int,
+        outside: int, band: tuple[float, float] | None, temperature_c: float | None,
+        relative_humidity: float | None, pressure_pa: float | None, tolerance: float | None,
+        window_ms: float | None, out_dir: Path | None, as_json: bool, strict: bool,
+        force: bool) -> None:
+    """Fit f0, Q, gain and delay to a two-microphone RECORDING."""
+    from .checks import F0_TOLERANCE
+    from .fileio import check_writable
+
+    targets = []
+    if out_dir is not None:
+        if out_dir.exists() and not out_dir.is_dir():
+            raise InputError(str(out_dir), None, "--out must be a directory")
+        targets = [out_dir / "result.json", out_dir / "response.png"]
+        for t in targets:
+            check_writable(t, force=force)
+    from .pipeline import analyze
+    from .report.document import to_json, write_document
+    from .report.text import summary
+
+    result = analyze(recording, object_path=object_path, sweep_path=sweep_path, inside=inside,
+                     outside=outside, band_hz=band, temperature_c=temperature_c,
+                     relative_humidity=relative_humidity, pressure_pa=pressure_pa,
+                     tolerance=F0_TOLERANCE if tolerance is None else tolerance,
+                     window_s=None if window_ms is None else window_ms / 1000.0)
+    doc = result.to_dict()
+    if out_dir is not None:
+        from .report.plots import response_plot
+
+        write_document(targets[0], doc)
+        response_plot(result, targets[1])
+    if as_json:
+        click.echo(to_json(doc), nl=False)
+    else:
+        click.echo(summary(doc))
+        if out_dir is not None:
+            click.echo(f"wrote {targets[0]} and {targets[1]}")
+    if strict and any(f.severity in ("warning", "error") for f in result.flags):
+        sys.exit(1)
+
+
+if __name__ == "__main__":  # pragma: no cover
+    main()

@@ -1,0 +1,4 @@
+"""Reports: the result document (JSON), a text summary and plots.
+
+Only :mod:`.plots` imports matplotlib, inside its functions.
+"""

@@ -1,0 +1,120 @@
+"""Plots (the only matplotlib user; imported inside functions, Agg backend).
+
+One look across the project: a warm paper background, ink-blue data, a
+vermilion fit, a violet dashed prediction and a sand-coloured fit band.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from ..fileio import atomic_write
+
+if TYPE_CHECKING:
+    from ..pipeline import Result
+
+PALETTE = {
+    "paper": "#fbf8f1",
+    "ink": "#1f3b5b",
+    "fit": "#d4462a",
+    "prediction": "#6a4c93",
+    "band": "#eadcb5",
+    "grid": "#d9d2c3",
+    "muted": "#7d7566",
+}
+
+
+def _figure(nrows: int, heights: list[float], size: tuple[float, float]) -> tuple[Any, Any]:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    fig, axes = plt.subplots(nrows, 1, figsize=size, sharex=True,
+                             gridspec_kw={"height_ratios": heights}, facecolor=PALETTE["paper"])
+    for ax in np.atleast_1d(axes):
+        ax.set_facecolor(PALETTE["paper"])
+        ax.grid(True, color=PALETTE["grid"], linewidth=0.6)
+        for side in ("top", "right"):
+            ax.spines[side].set_visible(False)
+        ax.tick_params(colors=PALETTE["muted"], labelsize=8)
+    return fig, axes
+
+
+def _save(fig: Any, path: str | Path) -> Path:
+    import matplotlib.pyplot as plt
+
+    def w(tmp: str) -> None:
+        fig.savefig(tmp, dpi=110, format=Path(path).suffix.lstrip(".") or "png",
+                    facecolor=PALETTE["paper"])
+
+    try:
+        return atomic_write(path, w)
+    finally:
+        plt.close(fig)
+
+
+def response_plot(result: Result, path: str | Path) -> Path:
+    """Magnitude and phase of the measured H with the fit and the prediction
+    overlaid, the fit band shaded, and the normalised residuals below."""
+    from ..fitting.models import inside_outside
+
+    tf, fit = result.transfer, result.fit
+    lo_b, hi_b = fit.band_hz
+    span_lo = max(tf.excited_band_hz[0], fit.f0_hz - 4 * (fit.f0_hz - lo_b))
+    span_hi = min(tf.excited_band_hz[1], fit.f0_hz + 4 * (hi_b - fit.f0_hz))
+    sel = (tf.freqs_hz >= span_lo) & (tf.freqs_hz <= span_hi)
+    f = tf.freqs_hz[sel]
+    h = tf.h[sel]
+    if f.size > 3000:
+        keep = np.linspace(0, f.size - 1, 3000).round().astype(int)
+        f, h = f[keep], h[keep]
+    ff = np.linspace(f[0], f[-1], 2000) if f.size else np.array([fit.f0_hz])
+    sign = -1.0 if fit.polarity_inverted else 1.0
+    model = inside_outside(ff, fit.f0_hz, fit.q, fit.gain, fit.delay_s, sign)
+    unwrap = np.exp(2j * np.pi * f * fit.delay_s) * sign  # show phase without the delay
+    unwrap_m = np.exp(2j * np.pi * ff * fit.delay_s) * sign
+
+    fig, (ax_m, ax_p, ax_r) = _figure(3, [3, 2, 1.3], (7.2, 6.6))
+    for ax in (ax_m, ax_p, ax_r):
+        ax.axvspan(lo_b, hi_b, color=PALETTE["band"], alpha=0.6, lw=0,
+                   label="fit band" if ax is ax_m else None)
+    ax_m.plot(f, 20 * np.log10(np.abs(h)), ".", ms=2.5, color=PALETTE["ink"], label="measured")
+    ax_m.plot(ff, 20 * np.log10(np.abs(model)), color=PALETTE["fit"], lw=1.6,
+              label=f"fit: f0 {fit.f0_hz:.2f} Hz, Q {fit.q:.1f}")
+    if result.prediction is not None:
+        pred = inside_outside(ff, result.prediction.f0_hz, fit.q, fit.gain, fit.delay_s, sign)
+        ax_m.plot(ff, 20 * np.log10(np.abs(pred)), "--", color=PALETTE["prediction"], lw=1.3,
+                  label=f"geometry: f0 {result.prediction.f0_hz:.2f} Hz (fitted Q, gain)")
+        ax_p.plot(ff, np.degrees(np.angle(pred * unwrap_m)), "--",
+                  color=PALETTE["prediction"], lw=1.3)
+    ax_m.set_ylabel("|H| inside/outside (dB)")
+    ax_m.legend(fontsize=7, frameon=False, loc="upper right")
+    name = result.object.name if result.object is not None else Path(result.input.recording).name
+    ax_m.set_title(f"{name}: inside/outside transfer function", fontsize=10,
+                   color=PALETTE["ink"], loc="left")
+    ax_p.plot(f, np.degrees(np.angle(h * unwrap)), ".", ms=2.5, color=PALETTE["ink"])
+    ax_p.plot(ff, np.degrees(np.angle(model * unwrap_m)), color=PALETTE["fit"], lw=1.6)
+    ax_p.set_ylabel("phase, delay removed (°)")
+    ax_p.set_ylim(-190, 10)
+    in_band = (f >= lo_b) & (f <= hi_b)
+    fb, hb = f[in_band], h[in_band]
+    if fb.size:
+        idx = np.searchsorted(tf.freqs_hz, fb)
+        mb = inside_outside(fb, fit.f0_hz, fit.q, fit.gain, fit.delay_s, sign)
+        sig = tf.sigma(np.abs(mb), idx) / np.sqrt(2)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            r = (hb - mb) / sig
+        ax_r.plot(fb, r.real, ".", ms=2.5, color=PALETTE["ink"], label="real")
+        ax_r.plot(fb, r.imag, ".", ms=2.5, color=PALETTE["fit"], label="imag")
+        ax_r.axhline(0, color=PALETTE["muted"], lw=0.8)
+        ax_r.legend(fontsize=7, frameon=False, ncol=2, loc="upper right")
+    ax_r.set_ylabel("residual (σ)")
+    ax_r.set_xlabel("frequency (Hz)")
+    if f.size and f[-1] / max(f[0], 1e-9) > 10:
+        ax_r.set_xscale("log")
+    fig.tight_layout()
+    return _save(fig, path)
