@@ -255,13 +255,24 @@ def band_filter(freqs_hz: NDArray[np.float64], lo_hz: float, hi_hz: float,
     """
     from scipy.signal import butter, freqs_zpk
 
-    w = 2 * np.pi * np.asarray(freqs_hz, dtype=np.float64)
-    # zeros-poles-gain form: the polynomial form loses precision at order 8
+    f = np.asarray(freqs_hz, dtype=np.float64)
+    # zeros-poles-gain form (the polynomial form loses precision at order 8),
+    # evaluated on a dense log grid and interpolated: the response is smooth in
+    # log frequency and the FFT grids here have up to millions of points
+    pos = f[f > 0]
+    if pos.size == 0:
+        return np.zeros(f.size, dtype=np.complex128)
+    grid = np.geomspace(pos.min(), max(pos.max(), pos.min() * 1.0001), 20000)
+    w = 2 * np.pi * grid
     zh, ph, kh = butter(order, 2 * np.pi * lo_hz, btype="highpass", analog=True, output="zpk")
     zl, pl, kl = butter(order, 2 * np.pi * hi_hz, btype="lowpass", analog=True, output="zpk")
     _, hh = freqs_zpk(zh, ph, kh, worN=w)
     _, hl = freqs_zpk(zl, pl, kl, worN=w)
-    return np.asarray(hh * hl, dtype=np.complex128)
+    g = hh * hl
+    lf = np.log(np.maximum(f, pos.min()))
+    out = np.interp(lf, np.log(grid), g.real) + 1j * np.interp(lf, np.log(grid), g.imag)
+    out[f <= 0] = 0.0
+    return out
 
 
 def inverse_spectrum(sweep: Sweep, n_fft: int) -> NDArray[np.complex128]:
@@ -273,7 +284,9 @@ def inverse_spectrum(sweep: Sweep, n_fft: int) -> NDArray[np.complex128]:
     Farina's time-reversed, amplitude-compensated inverse filter (Farina 2000).
     """
     p = sweep.params
-    x = np.fft.rfft(sweep.samples, n_fft)
+    from scipy import fft as sfft
+
+    x = sfft.rfft(sweep.samples, n_fft)
     f = np.fft.rfftfreq(n_fft, 1 / p.rate_hz)
     lo, hi = usable_band(p)
     limit = band_filter(f, lo, min(hi, 0.45 * p.rate_hz))

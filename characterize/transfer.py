@@ -104,6 +104,18 @@ def _fast_len(n: int) -> int:
     return int(next_fast_len(int(n), real=True))
 
 
+def _fast_below(n: int) -> int:
+    """The largest 5-smooth length not above ``n`` (fast FFT sizes)."""
+    from scipy.fft import next_fast_len
+
+    m = int(n)
+    while m > 16:
+        if next_fast_len(m, real=True) == m:
+            return m
+        m -= 1
+    return int(n)
+
+
 def estimate_peak(freqs_hz: NDArray[np.float64], h: NDArray[np.complex128],
                   band_hz: tuple[float, float]) -> tuple[float, float]:
     """Rough f0 and Q from |H|: the largest peak inside ``band_hz`` and its
@@ -234,8 +246,10 @@ def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64],
     n = inside.size
     n_fft = _fast_len(n + sweep.samples.size)
     xinv = inverse_spectrum(sweep, n_fft)
-    ir_in = np.fft.irfft(np.fft.rfft(inside, n_fft) * xinv, n_fft)
-    ir_out = np.fft.irfft(np.fft.rfft(outside, n_fft) * xinv, n_fft)
+    from scipy import fft as sfft
+
+    ir_in = sfft.irfft(sfft.rfft(inside, n_fft) * xinv, n_fft)
+    ir_out = sfft.irfft(sfft.rfft(outside, n_fft) * xinv, n_fft)
     adv2 = int(p.harmonic_advance_s(2) * rate_hz)
     onset = find_onset(ir_out, rate_hz, max_lookback=adv2 // 2)
     pre = int(round(PRE_ONSET_S * rate_hz))
@@ -258,19 +272,20 @@ def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64],
         w[:pre] = 0.5 * (1 - np.cos(np.pi * np.arange(pre) / pre))
         n_taper = max(2, length // 20)
         w[-n_taper:] = 0.5 * (1 + np.cos(np.pi * (np.arange(n_taper) + 1) / n_taper))
-        fi = np.fft.rfft(seg_in[:length] * w)
-        fo = np.fft.rfft(seg_out[:length] * w)
+        fi = sfft.rfft(seg_in[:length] * w)
+        fo = sfft.rfft(seg_out[:length] * w)
         return np.fft.rfftfreq(length, 1 / rate_hz), fi, fo, w
 
     f0_est: float | None = None
     tau = math.nan
     if window_s is None:
-        f, fi, fo, _ = spectra(l_max)
+        f, fi, fo, _ = spectra(_fast_below(l_max))
         with np.errstate(divide="ignore", invalid="ignore"):
             h0 = fi / fo
         f0_est, q_est = estimate_peak(f, h0, band)
         tau = q_est / (math.pi * f0_est)
         length = int(min(l_max, max(WINDOW_TIME_CONSTANTS * tau, MIN_WINDOW_S) * rate_hz))
+        length = min(_fast_len(length), _fast_below(l_max))
     else:
         length = int(round(window_s * rate_hz))
         if length < 4 * pre or length > l_max:
