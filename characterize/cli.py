@@ -204,5 +204,13 @@ def fit(recording: Path, object_path: Path | None, sweep_path: Path | None, insi
         sys.exit(1)
 
 
+def _register() -> None:
+    from .commands import register
+
+    register(main)
+
+
+_register()
+
 if __name__ == "__main__":  # pragma: no cover
     main()

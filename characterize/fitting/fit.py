@@ -52,10 +52,15 @@ class FitResult:
     weighting: str  # "noise-estimate" or "residuals" (no noise estimate available)
     correlation_f0_q: float
     nfev: int
+    #: Cramer-Rao bounds (1 sigma) at the estimate, from the Fisher information of
+    #: the complex-Gaussian likelihood with the per-bin noise model (unscaled).
+    crlb_f0_hz: float = math.nan
+    crlb_q: float = math.nan
 
     def to_dict(self) -> dict[str, object]:
         d = asdict(self)
         d["band_hz"] = [float(self.band_hz[0]), float(self.band_hz[1])]
+        d["crlb"] = {"f0_hz": d.pop("crlb_f0_hz"), "q": d.pop("crlb_q")}
         return {k: (float(v) if isinstance(v, (np.floating, np.integer)) else v)
                 for k, v in d.items()}
 
@@ -263,5 +268,7 @@ def fit_transfer(tf: TransferFunction, band_hz: tuple[float, float] | None = Non
         band_hz=(float(used_band[0]), float(used_band[1])),
         n_points=int(f.size), chi2=chi2, reduced_chi2=redchi,
         stderr_scale=scale, weighting="noise-estimate" if weighted else "residuals",
-        correlation_f0_q=corr, nfev=int(result.nfev),
+        correlation_f0_q=corr,
+        crlb_f0_hz=float(math.sqrt(cov[i_f, i_f])) if weighted else math.nan,
+        crlb_q=float(math.sqrt(cov[i_q, i_q])) if weighted else math.nan, nfev=int(result.nfev),
     )
