@@ -6,40 +6,17 @@ the commands, so ``characterize --help`` starts fast.
 
 from __future__ import annotations
 
-import functools
 import sys
-from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
 import click
 
 from . import __version__
-from .errors import CharacterizeError, FitError, InputError
+from .errors import InputError
 
 
-def _fail(message: str, code: int) -> None:
-    click.echo(f"characterize: {message}", err=True)
-    sys.exit(code)
-
-
-def handles_errors(fn: Callable[..., Any]) -> Callable[..., Any]:
-    """Turn library errors into one line and an exit status (2 input, 1 no fit)."""
-
-    @functools.wraps(fn)
-    def wrapper(*args: Any, **kwargs: Any) -> Any:
-        try:
-            return fn(*args, **kwargs)
-        except InputError as exc:
-            _fail(f"error: {exc}", 2)
-        except FitError as exc:
-            _fail(f"no fit: {exc}", 1)
-        except CharacterizeError as exc:
-            _fail(f"error: {exc}", 2)
-        except MemoryError:
-            _fail("error: not enough memory for this recording", 2)
-
-    return wrapper
+from .commands._errors import handles_errors  # noqa: E402  (one error policy for all commands)
 
 
 class Fraction(click.ParamType):
