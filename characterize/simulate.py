@@ -58,6 +58,9 @@ class Setup:
     loudspeaker_highpass_hz: float = 40.0
     peak_dbfs: float = -6.0
     body_modes: tuple[tuple[float, float, float], ...] = ()  # (f_hz, q, gain) added to H
+    #: memoryless polynomial y = x + a2 x^2 + a3 x^3 applied to the inside
+    #: microphone's signal (normalised to its peak first): (a2, a3)
+    inside_polynomial: tuple[float, float] = (0.0, 0.0)
     extra: dict[str, float] = field(default_factory=dict)
 
     def with_(self, **kw: object) -> Setup:
@@ -89,7 +92,7 @@ def true_transfer(setup: Setup, freqs_hz: NDArray[np.float64]) -> NDArray[np.com
     f = np.asarray(freqs_hz, dtype=np.float64)
     h = resonator_response(f, setup.f0_hz, setup.q)
     for fb, qb, gb in setup.body_modes:
-        h = h + gb * (resonator_response(f, fb, qb) - 1.0)
+        h = h + gb * resonator_response(f, fb, qb)
     sign = -1.0 if setup.inverted else 1.0
     return sign * setup.gain * h * np.exp(-2j * np.pi * f * setup.delay_s)
 
@@ -143,6 +146,11 @@ def simulate(setup: Setup, seed: int | np.random.Generator = 0
     pe = e * speaker * room
     outside = np.fft.irfft(pe, n_fft)[:n_rec] * setup.gain_outside
     inside = np.fft.irfft(pe * true_transfer(setup, f), n_fft)[:n_rec] * setup.gain_outside
+    a2, a3 = setup.inside_polynomial
+    if a2 or a3:
+        peak = float(np.max(np.abs(inside)))
+        u = inside / peak
+        inside = (u + a2 * u**2 + a3 * u**3) * peak
     clean = np.stack([inside, outside], axis=1)
     rms_out = float(np.sqrt(np.mean(outside**2)))
     sigma = rms_out * 10 ** (-setup.snr_db / 20)

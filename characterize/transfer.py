@@ -22,7 +22,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from .errors import FitError
-from .excitation import Sweep, inverse_spectrum, usable_band
+from .excitation import Sweep, band_filter, inverse_spectrum, usable_band
 
 #: Time before the direct sound's peak kept in the window (s); also the taper-in.
 PRE_ONSET_S = 0.004
@@ -35,6 +35,8 @@ MIN_WINDOW_TIME_CONSTANTS = 7.0
 MIN_WINDOW_S = 0.1
 #: Harmonic orders whose images are kept out of the window.
 HARMONIC_ORDERS_EXCLUDED = 8
+#: Harmonic orders summed into the THD.
+HARMONIC_ORDERS_THD = 5
 #: Segments averaged in the cross-spectral path should be at least this long,
 #: in units of 1/(bandwidth) = Q/f0 (Bendat & Piersol resolution bias rule).
 SEGMENT_BANDWIDTHS = 8.0
@@ -51,11 +53,12 @@ class WindowInfo:
     taper_in_s: float
     taper_out_s: float
     time_constants: float  # window length over the estimated Q/(pi f0)
+    reflection_s: float | None = None  # first strong reflection (one-microphone path)
 
-    def to_dict(self) -> dict[str, float]:
+    def to_dict(self) -> dict[str, float | None]:
         return {"start_s": self.start_s, "length_s": self.length_s,
                 "taper_in_s": self.taper_in_s, "taper_out_s": self.taper_out_s,
-                "time_constants": self.time_constants}
+                "time_constants": self.time_constants, "reflection_s": self.reflection_s}
 
 
 @dataclass(frozen=True)
@@ -84,6 +87,12 @@ class TransferFunction:
     #: Spectral smoothing the estimator applies to the true H (frequency offsets
     #: in Hz and weights summing to 1), or None. The fit applies it to the model.
     kernel: tuple[NDArray[np.float64], NDArray[np.float64]] | None = None
+    #: How the kernel acts: "linear" (E[H1] = H * K) or "h2" (E[H2] = (|H|^2 * K)/(H^* * K)).
+    kernel_form: str = "linear"
+    #: Total harmonic distortion of each channel against the excitation frequency
+    #: (sweep path only; orders 2..HARMONIC_ORDERS_THD), on ``freqs_hz``.
+    thd_inside: NDArray[np.float64] | None = None
+    thd_outside: NDArray[np.float64] | None = None
 
     def sigma(self, h_abs: NDArray[np.float64] | None = None,
               idx: NDArray[np.intp] | None = None) -> NDArray[np.float64]:
@@ -95,7 +104,8 @@ class TransferFunction:
 
     @property
     def resolution_hz(self) -> float:
-        return float(self.freqs_hz[1] - self.freqs_hz[0])
+        """Median frequency step (Hz); uniform grids except for imported CSV."""
+        return float(np.median(np.diff(self.freqs_hz)))
 
 
 def _fast_len(n: int) -> int:
@@ -114,6 +124,18 @@ def _fast_below(n: int) -> int:
             return m
         m -= 1
     return int(n)
+
+
+#: Bins below this coherence are left out of the peak search (H2 and H1 blow up or
+#: sink where the inside channel is mostly noise).
+PEAK_SEARCH_MIN_COHERENCE = 0.5
+
+
+def peak_search_values(tf: TransferFunction) -> NDArray[np.complex128]:
+    """H with the bins unfit for a peak search (low coherence) set to NaN."""
+    if tf.coherence is None:
+        return tf.h
+    return np.where(tf.coherence >= PEAK_SEARCH_MIN_COHERENCE, tf.h, np.nan)
 
 
 def estimate_peak(freqs_hz: NDArray[np.float64], h: NDArray[np.complex128],
@@ -228,10 +250,82 @@ def find_onset(ir: NDArray[np.float64], rate_hz: float, max_lookback: int) -> in
     return i_peak - look + int(below[-1])
 
 
-def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64],
+def harmonic_distortion(ir: NDArray[np.float64], onset: int, pre: int, sweep: Sweep,
+                        rate_hz: float, freqs_hz: NDArray[np.float64], max_length: int,
+                        fundamental: NDArray[np.complex128]) -> NDArray[np.float64]:
+    """THD against excitation frequency from the harmonic impulse responses.
+
+    After deconvolution of an exponential sweep, the n-th harmonic's response
+    sits T ln(n)/ln(f2/f1) before the linear one, and its spectrum at n f is the
+    n-th harmonic's amplitude for a drive at f, relative to the drive (the
+    harmonic sweeps through n f at the same relative rate as the sweep itself;
+    Farina 2000). THD(f) = sqrt(sum_n |H_n(n f)|^2) / |H_1(f)| for n = 2..5.
+    """
+    p = sweep.params
+    n_fft = ir.size
+    total = np.zeros(freqs_hz.size)
+    lo, hi = p.start_hz * 1.0, p.stop_hz
+    from scipy import fft as sfft
+
+    for order in range(2, HARMONIC_ORDERS_THD + 1):
+        adv = int(round(p.harmonic_advance_s(order) * rate_hz))
+        gap = adv - int(round(p.harmonic_advance_s(order - 1) * rate_hz))
+        length = int(min(max_length, gap - 2 * pre))
+        if length < 4 * pre:
+            break
+        idx = (onset - adv - pre + np.arange(length)) % n_fft
+        w = np.ones(length)
+        w[:pre] = 0.5 * (1 - np.cos(np.pi * np.arange(pre) / pre))
+        taper = max(2, length // 20)
+        w[-taper:] = 0.5 * (1 + np.cos(np.pi * (np.arange(taper) + 1) / taper))
+        spec = sfft.rfft(ir[idx] * w)
+        f_n = np.fft.rfftfreq(length, 1 / rate_hz)
+        target = order * freqs_hz
+        mag = np.interp(target, f_n, np.abs(spec), right=np.nan)
+        mag[(target > hi) | (target < lo)] = np.nan
+        total = total + np.where(np.isfinite(mag), mag, 0.0) ** 2
+    with np.errstate(divide="ignore", invalid="ignore"):
+        thd = np.sqrt(total) / np.abs(fundamental)
+    thd[(freqs_hz < p.start_hz) | (2 * freqs_hz > hi)] = np.nan
+    return thd
+
+
+#: A later arrival above this fraction of the direct sound (high-passed envelope)
+#: is taken as the first strong reflection on the one-microphone path.
+REFLECTION_FRACTION = 0.2
+
+
+def first_reflection(ir: NDArray[np.float64], onset: int, rate_hz: float, lo_hz: float,
+                     hi_hz: float) -> int | None:
+    """Samples from the onset to the first strong reflection in a one-microphone
+    impulse response, or None. Above the resonance the resonator passes sound
+    with little smearing, so arrivals show as separate peaks in the envelope of
+    the response high-passed at ``lo_hz``; the first later peak above
+    ``REFLECTION_FRACTION`` of the direct one, at least 1 ms after it, counts."""
+    from scipy.ndimage import maximum_filter1d
+    from scipy.signal import butter, sosfiltfilt
+
+    lo = min(lo_hz, 0.4 * hi_hz)
+    if lo >= hi_hz or hi_hz >= rate_hz / 2:
+        return None
+    seg = ir[(onset + np.arange(-int(0.01 * rate_hz), int(0.25 * rate_hz))) % ir.size]
+    sos = butter(4, [lo, hi_hz], btype="bandpass", fs=rate_hz, output="sos")
+    env = maximum_filter1d(np.abs(sosfiltfilt(sos, seg)), size=max(3, int(2.5e-4 * rate_hz)))
+    z = int(0.01 * rate_hz)
+    direct = float(np.max(env[z: z + int(0.002 * rate_hz)]))
+    gap = z + int(0.0015 * rate_hz)
+    later = np.flatnonzero(env[gap:] > REFLECTION_FRACTION * direct)
+    if later.size == 0 or direct <= 0:
+        return None
+    return int(gap + later[0] - z)
+
+
+def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64] | None,
                    rate_hz: float, sweep: Sweep, *, window_s: float | None = None
                    ) -> TransferFunction:
-    """H(f) from a swept-sine recording of both microphones.
+    """H(f) from a swept-sine recording of both microphones, or of the inside
+    one alone (``outside=None``: H then includes the loudspeaker and the room,
+    and the window ends before the first strong reflection).
 
     Steps: linear deconvolution of each channel by the sweep's regularised
     inverse (:func:`characterize.excitation.inverse_spectrum`), on an FFT
@@ -249,9 +343,17 @@ def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64],
     from scipy import fft as sfft
 
     ir_in = sfft.irfft(sfft.rfft(inside, n_fft) * xinv, n_fft)
-    ir_out = sfft.irfft(sfft.rfft(outside, n_fft) * xinv, n_fft)
     adv2 = int(p.harmonic_advance_s(2) * rate_hz)
-    onset = find_onset(ir_out, rate_hz, max_lookback=adv2 // 2)
+    one_mic = outside is None
+    if one_mic:
+        # the reference is the excitation itself: the band-limited impulse at the onset
+        onset = find_onset(ir_in, rate_hz, max_lookback=adv2 // 2)
+        lo_b, hi_b = usable_band(p)
+        limit = band_filter(np.fft.rfftfreq(n_fft, 1 / rate_hz), lo_b, hi_b)
+        ir_out = np.roll(sfft.irfft(limit, n_fft), onset)
+    else:
+        ir_out = sfft.irfft(sfft.rfft(outside, n_fft) * xinv, n_fft)
+        onset = find_onset(ir_out, rate_hz, max_lookback=adv2 // 2)
     pre = int(round(PRE_ONSET_S * rate_hz))
     pre = max(8, min(pre, adv2 // 2))
     adv_max = int(p.harmonic_advance_s(HARMONIC_ORDERS_EXCLUDED) * rate_hz)
@@ -292,6 +394,12 @@ def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64],
             raise FitError(f"window of {window_s * 1000:.0f} ms is outside what this recording "
                            f"allows ({4 * pre / rate_hz * 1000:.0f} to "
                            f"{l_max / rate_hz * 1000:.0f} ms)")
+    reflection_s = None
+    if one_mic and window_s is None and f0_est is not None:
+        refl = first_reflection(ir_in, onset, rate_hz, 4 * f0_est, usable_band(p)[1])
+        if refl is not None:
+            reflection_s = refl / rate_hz
+            length = min(length, max(4 * pre, pre + refl - int(5e-4 * rate_hz)))
     f, fi, fo, w = spectra(length)
     with np.errstate(divide="ignore", invalid="ignore"):
         h = fi / fo
@@ -324,19 +432,26 @@ def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64],
     sw2 = w2_cum[np.clip(until, 0, length).astype(int)]
     shape = np.abs(np.interp(f, np.fft.rfftfreq(n_fft, 1 / rate_hz), np.abs(xinv))) ** 2
     pn_in = _noise_power(seg_in[n0:], length, rate_hz, until, n0, shape) * sw2
-    pn_out = _noise_power(seg_out[n0:], length, rate_hz, until, n0, shape) * sw2
+    pn_out = (np.zeros_like(pn_in) if one_mic else
+              _noise_power(seg_out[n0:], length, rate_hz, until, n0, shape) * sw2)
     with np.errstate(divide="ignore"):
         fo2 = np.abs(fo) ** 2
         noise_a = pn_in / fo2
         noise_b = pn_out / fo2
         ref_db = 10 * np.log10(np.maximum(fo2, 1e-300))
+    thd_in = harmonic_distortion(ir_in, start + pre, pre, sweep, rate_hz, f, length, fi)
+    thd_out = None if one_mic else harmonic_distortion(ir_out, start + pre, pre, sweep,
+                                                         rate_hz, f, length, fo)
     t = (np.arange(length) - pre) / rate_hz
     win = WindowInfo(start_s=-pre / rate_hz, length_s=length / rate_hz,
                      taper_in_s=pre / rate_hz, taper_out_s=max(2, length // 20) / rate_hz,
-                     time_constants=length / rate_hz / tau if math.isfinite(tau) else math.nan)
-    return TransferFunction(f, h, noise_a, noise_b, band, "sweep-deconvolution", ref_db,
+                     time_constants=length / rate_hz / tau if math.isfinite(tau) else math.nan,
+                     reflection_s=reflection_s)
+    method = "one-channel-sweep" if one_mic else "sweep-deconvolution"
+    return TransferFunction(f, h, noise_a, noise_b, band, method, ref_db,
                             window=win, impulse_t_s=t, impulse_inside=seg_in[:length].copy(),
-                            impulse_outside=seg_out[:length].copy())
+                            impulse_outside=seg_out[:length].copy(),
+                            thd_inside=thd_in, thd_outside=thd_out)
 
 
 def hann_power_kernel(nperseg: int, rate_hz: float, oversample: int = 16,
@@ -363,9 +478,15 @@ def hann_power_kernel(nperseg: int, rate_hz: float, oversample: int = 16,
 
 
 def cross_spectral_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64],
-                            rate_hz: float, *, nperseg: int | None = None
-                            ) -> TransferFunction:
-    """H1 = G_xy/G_xx (x outside, y inside) with Welch averaging and coherence.
+                            rate_hz: float, *, nperseg: int | None = None,
+                            estimator: str = "h1") -> TransferFunction:
+    """H1 = G_xy/G_xx or H2 = G_yy/G_yx (x outside, y inside) with Welch
+    averaging and the ordinary coherence gamma^2 = |G_xy|^2/(G_xx G_yy) = H1/H2.
+
+    Noise at the reference (outside) microphone biases H1 low, noise at the
+    inside microphone biases H2 high (Bendat & Piersol, *Random Data*, 4th ed.
+    2010, ch. 6); with the reference at the mouth, ambient sound there is
+    excitation, not error, so H1 is the default.
 
     The per-bin random error of H1 (Bendat & Piersol, *Random Data*, 4th ed.
     2010, ch. 9) is
@@ -382,6 +503,8 @@ def cross_spectral_transfer(inside: NDArray[np.float64], outside: NDArray[np.flo
     """
     from scipy.signal import csd, welch
 
+    if estimator not in ("h1", "h2"):
+        raise ValueError(f"estimator must be one of ['h1', 'h2'], got {estimator!r}")
     n = inside.size
 
     def estimate(m: int) -> TransferFunction:
@@ -390,7 +513,7 @@ def cross_spectral_transfer(inside: NDArray[np.float64], outside: NDArray[np.flo
         _, gxx = welch(outside, fs=rate_hz, window="hann", nperseg=m)
         _, gyy = welch(inside, fs=rate_hz, window="hann", nperseg=m)
         with np.errstate(divide="ignore", invalid="ignore"):
-            h1 = gxy / gxx
+            h = gxy / gxx if estimator == "h1" else gyy / np.conj(gxy)
             coh = np.clip(np.abs(gxy) ** 2 / (gxx * gyy), 0.0, 1.0)
         n_seg = max(1, (n - m) // (m // 2) + 1)
         n_d = max(1.5, n_seg / 1.056)  # Hann, 50 % overlap (Welch 1967 variance ratio)
@@ -401,17 +524,18 @@ def cross_spectral_transfer(inside: NDArray[np.float64], outside: NDArray[np.flo
         excited = f[gxx > 1e-6 * level] if np.any(gxx > 0) else f
         lo = max(float(excited[1]) if excited.size > 1 else f[1], 2 * rate_hz / m)
         hi = min(float(excited[-1]) if excited.size else rate_hz / 2, 0.45 * rate_hz)
-        return TransferFunction(f, h1.astype(np.complex128), np.zeros_like(f), rel2, (lo, hi),
-                                "cross-spectral-h1",
+        return TransferFunction(f, h.astype(np.complex128), np.zeros_like(f), rel2, (lo, hi),
+                                f"cross-spectral-{estimator}",
                                 10 * np.log10(np.maximum(gxx, 1e-300)),
                                 coherence=coh, averages=int(n_seg),
-                                kernel=hann_power_kernel(m, rate_hz))
+                                kernel=hann_power_kernel(m, rate_hz),
+                                kernel_form="linear" if estimator == "h1" else "h2")
 
     if nperseg is not None:
         return estimate(nperseg)
     m0 = 2 ** int(np.clip(round(math.log2(max(n / 16, 256))), 8, 20))
     first = estimate(m0)
-    f0, q = estimate_peak(first.freqs_hz, first.h, first.excited_band_hz)
+    f0, q = estimate_peak(first.freqs_hz, peak_search_values(first), first.excited_band_hz)
     want = SEGMENT_BANDWIDTHS * q / f0 * rate_hz
     limit = 2 * n // (MIN_AVERAGES + 1)
     m = int(2 ** math.ceil(math.log2(max(want, 256))))

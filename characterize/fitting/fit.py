@@ -16,7 +16,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from ..errors import FitError
-from ..transfer import TransferFunction, estimate_peak
+from ..transfer import TransferFunction, estimate_peak, peak_search_values
 from .models import inside_outside, oscillator
 
 #: The automatic fit band spans f0 (1 -+ AUTO_BAND_HALF_WIDTH / Q), i.e. this
@@ -121,22 +121,26 @@ Kernel = tuple[NDArray[np.float64], NDArray[np.float64]] | None
 
 
 def model_at(p: NDArray[np.float64], f: NDArray[np.float64], sign: float,
-             kernel: Kernel = None) -> NDArray[np.complex128]:
+             kernel: Kernel = None, form: str = "linear") -> NDArray[np.complex128]:
     """The model at ``p = [f0_hz, q, gain, delay_s]``, smoothed by the
-    estimator's spectral ``kernel`` (offsets Hz, weights) when there is one."""
+    estimator's spectral ``kernel`` (offsets Hz, weights) when there is one:
+    ``H * K`` for H1, ``(|H|^2 * K) / (H^* * K)`` for H2."""
     if kernel is None:
         return inside_outside(f, p[0], p[1], p[2], p[3], sign)
     off, wts = kernel
     grid = f[:, None] + off[None, :]
-    return inside_outside(grid, p[0], p[1], p[2], p[3], sign) @ wts
+    m = inside_outside(grid, p[0], p[1], p[2], p[3], sign)
+    if form == "h2":
+        return (np.abs(m) ** 2 @ wts) / (np.conj(m) @ wts)
+    return m @ wts
 
 
 def residual_at(p: NDArray[np.float64], f: NDArray[np.float64], h: NDArray[np.complex128],
-                sig: NDArray[np.float64], sign: float, kernel: Kernel = None
-                ) -> NDArray[np.float64]:
+                sig: NDArray[np.float64], sign: float, kernel: Kernel = None,
+                form: str = "linear") -> NDArray[np.float64]:
     """Standardised residuals (real parts, then imaginary parts) at parameters
     ``p = [f0_hz, q, gain, delay_s]``."""
-    d = (h - model_at(p, f, sign, kernel)) / sig
+    d = (h - model_at(p, f, sign, kernel, form)) / sig
     return np.concatenate([d.real, d.imag])
 
 
@@ -149,7 +153,7 @@ def covariance(fun: object, p: NDArray[np.float64]) -> NDArray[np.float64]:
     not determine).
     """
     p = np.asarray(p, dtype=np.float64)
-    steps = np.maximum(np.abs(p) * 1e-6, [1e-9, 1e-9, 1e-12, 1e-10])
+    steps = np.maximum(np.abs(p) * 1e-6, 1e-12)
     cols = []
     for i, s in enumerate(steps):
         e = np.zeros_like(p)
@@ -187,7 +191,8 @@ def fit_transfer(tf: TransferFunction, band_hz: tuple[float, float] | None = Non
     import lmfit
 
     excited = tf.excited_band_hz
-    f0, q = estimate_peak(tf.freqs_hz, tf.h, excited if band_hz is None else band_hz)
+    f0, q = estimate_peak(tf.freqs_hz, peak_search_values(tf),
+                          excited if band_hz is None else band_hz)
     band = band_hz if band_hz is not None else auto_band(f0, q, excited)
     # start values for delay and sign from a wider band, where the phase slope shows
     wide = _select(tf, (max(excited[0], f0 / 3), min(excited[1], 3 * f0)))
@@ -227,7 +232,7 @@ def fit_transfer(tf: TransferFunction, band_hz: tuple[float, float] | None = Non
                      h: NDArray[np.complex128] = h, sig: NDArray[np.float64] = sig
                      ) -> NDArray[np.float64]:
             v = np.array([p["f0"].value, p["q"].value, p["gain"].value, p["delay"].value])
-            return residual_at(v, f, h, sig, sign, tf.kernel)
+            return residual_at(v, f, h, sig, sign, tf.kernel, tf.kernel_form)
 
         mini = lmfit.Minimizer(residual, params, scale_covar=False, nan_policy="raise")
         result = mini.minimize(method="least_squares", x_scale="jac", ftol=1e-12, xtol=1e-12, gtol=1e-12)
@@ -243,8 +248,8 @@ def fit_transfer(tf: TransferFunction, band_hz: tuple[float, float] | None = Non
     pv = result.params
     names = ["f0", "q", "gain", "delay"]
     p_hat = np.array([pv[k].value for k in names])
-    cov = covariance(lambda p: residual_at(p, f, h, sig, sign, tf.kernel), p_hat)
-    chi2 = float(np.sum(residual_at(p_hat, f, h, sig, sign, tf.kernel) ** 2))
+    cov = covariance(lambda p: residual_at(p, f, h, sig, sign, tf.kernel, tf.kernel_form), p_hat)
+    chi2 = float(np.sum(residual_at(p_hat, f, h, sig, sign, tf.kernel, tf.kernel_form) ** 2))
     dof = max(1, 2 * f.size - len(names))
     redchi = chi2 / dof
     # Honest errors: with a noise estimate, the covariance is scaled up (never

@@ -1,0 +1,241 @@
+"""Several resonances, or one with a smooth background, fitted at once.
+
+Model (frequencies in Hz, x = (f - f_ref)/f_ref with f_ref the first mode's f0):
+
+.. math::
+
+    H(f) = e^{-j 2\\pi f \\tau} \\, P(f) \\sum_k g_k R(f; f_k, Q_k),
+    \\qquad R = \\frac{1}{1 - (f/f_k)^2 + j f/(Q_k f_k)}
+
+- two-microphone paths: P = s (the polarity), g_1 >= 0, other g_k signed;
+- one-microphone path (the loudspeaker and room are then part of H): P is a
+  complex polynomial of low order in x (the smooth background), g_1 = 1.
+
+Fitted by complex least squares with lmfit, like :mod:`.fit`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from ..errors import FitError, InputError
+from ..transfer import TransferFunction, peak_search_values
+from .fit import MAX_DELAY_S, MIN_POINTS, covariance
+from .models import oscillator
+
+#: A peak must stand this many dB above its surroundings (scipy.signal.find_peaks
+#: prominence on the smoothed |H| in dB) to count as a resonance.
+PEAK_PROMINENCE_DB = 6.0
+
+
+@dataclass(frozen=True, slots=True)
+class Mode:
+    f0_hz: float
+    f0_stderr_hz: float
+    q: float
+    q_stderr: float
+    gain: float
+    gain_stderr: float
+
+    def to_dict(self) -> dict[str, float]:
+        return {k: float(v) for k, v in asdict(self).items()}
+
+
+@dataclass(frozen=True)
+class ModesFit:
+    modes: tuple[Mode, ...]
+    delay_s: float
+    delay_stderr_s: float
+    sign: float
+    background: tuple[complex, ...]  # polynomial coefficients c0, c1, ... (empty: none)
+    band_hz: tuple[float, float]
+    n_points: int
+    reduced_chi2: float
+    stderr_scale: float
+    weighting: str
+
+    def model(self, freqs_hz: NDArray[np.float64]) -> NDArray[np.complex128]:
+        p = _pack(self)
+        return _model(p, freqs_hz, len(self.modes), len(self.background), self.sign)
+
+
+def find_resonances(tf: TransferFunction, band_hz: tuple[float, float] | None = None
+                    ) -> list[tuple[float, float]]:
+    """Resonance peaks (f0 estimate, Q estimate from the half-power width) in
+    ``band_hz`` (default the excited band), most prominent first."""
+    from scipy.signal import find_peaks, peak_widths
+
+    lo, hi = band_hz or tf.excited_band_hz
+    h = peak_search_values(tf)
+    sel = np.flatnonzero((tf.freqs_hz >= lo) & (tf.freqs_hz <= hi) & np.isfinite(h))
+    if sel.size < 5:
+        return []
+    f = tf.freqs_hz[sel]
+    mag = np.abs(h[sel])
+    k = max(1, min(9, sel.size // 300))
+    if k > 1:
+        mag = np.convolve(mag, np.ones(k) / k, mode="same")
+    db = 20 * np.log10(np.maximum(mag, 1e-300))
+    peaks, props = find_peaks(db, prominence=PEAK_PROMINENCE_DB)
+    if peaks.size == 0:
+        return []
+    widths = peak_widths(mag, peaks, rel_height=1 - 1 / math.sqrt(2))[0]
+    df = np.gradient(f)[peaks]
+    out = []
+    for i, pk in enumerate(peaks):
+        width_hz = max(widths[i] * df[i], df[i])
+        out.append((float(f[pk]), float(max(f[pk] / width_hz, 0.5)), float(props["prominences"][i])))
+    out.sort(key=lambda t: -t[2])
+    return [(fr, q) for fr, q, _ in out]
+
+
+def _model(p: NDArray[np.float64], f: NDArray[np.float64], n_modes: int, n_bg: int,
+           sign: float) -> NDArray[np.complex128]:
+    f_ref = p[0]
+    acc = np.zeros(f.shape, dtype=np.complex128)
+    for k in range(n_modes):
+        fk, qk, gk = p[3 * k], p[3 * k + 1], p[3 * k + 2]
+        acc = acc + gk * oscillator(f, fk, qk)
+    tau = p[3 * n_modes]
+    if n_bg:
+        x = (f - f_ref) / f_ref
+        bg = np.zeros(f.shape, dtype=np.complex128)
+        for j in range(n_bg):
+            c = p[3 * n_modes + 1 + 2 * j] + 1j * p[3 * n_modes + 2 + 2 * j]
+            bg = bg + c * x**j
+        acc = acc * bg
+    else:
+        acc = acc * sign
+    return acc * np.exp(-2j * np.pi * f * tau)
+
+
+def _pack(fit: ModesFit) -> NDArray[np.float64]:
+    v: list[float] = []
+    for m in fit.modes:
+        v += [m.f0_hz, m.q, m.gain]
+    v.append(fit.delay_s)
+    for c in fit.background:
+        v += [c.real, c.imag]
+    return np.asarray(v)
+
+
+def _start_gains(f: NDArray[np.float64], h: NDArray[np.complex128], w: NDArray[np.float64],
+                 peaks: list[tuple[float, float]], complex_gain: bool
+                 ) -> tuple[float, NDArray[np.complex128]]:
+    """Delay and mode gains to start from: for each delay on a grid, the gains
+    are a linear least-squares problem (real gains on the two-microphone paths,
+    complex on the one-microphone path); keep the delay with the least residual."""
+    basis = np.stack([oscillator(f, fk, qk) for fk, qk in peaks], axis=1)
+    sw = np.sqrt(w)
+    step = 0.05 / (2 * np.pi * float(np.max(f)))
+    taus = np.arange(-MAX_DELAY_S, MAX_DELAY_S + step, step)
+    best = (math.inf, 0.0, np.zeros(len(peaks), dtype=np.complex128))
+    for tau in taus:
+        b = basis * np.exp(-2j * np.pi * f * tau)[:, None] * sw[:, None]
+        y = h * sw
+        if complex_gain:
+            g, *_ = np.linalg.lstsq(b, y, rcond=None)
+            r = float(np.sum(np.abs(y - b @ g) ** 2))
+        else:
+            a = np.concatenate([b.real, b.imag])
+            g_r, *_ = np.linalg.lstsq(a, np.concatenate([y.real, y.imag]), rcond=None)
+            g = g_r.astype(np.complex128)
+            r = float(np.sum(np.abs(y - b @ g_r) ** 2))
+        if r < best[0]:
+            best = (r, float(tau), g)
+    return best[1], best[2]
+
+
+def fit_modes(tf: TransferFunction, n_modes: int, *, background_order: int = -1,
+              band_hz: tuple[float, float] | None = None,
+              starts: list[tuple[float, float]] | None = None) -> ModesFit:
+    """Fit ``n_modes`` oscillators (and a background polynomial of
+    ``background_order``, -1 for none) to ``tf``.
+
+    Raises :class:`InputError` when the data show fewer peaks than asked for,
+    :class:`FitError` when the fit fails.
+    """
+    import lmfit
+
+    peaks = starts if starts is not None else find_resonances(tf, band_hz)
+    if len(peaks) < n_modes:
+        raise InputError("--modes", None, f"{n_modes} modes asked for but the data show "
+                         f"{len(peaks)} resonance peak(s) of at least {PEAK_PROMINENCE_DB:g} dB "
+                         "prominence")
+    peaks = sorted(peaks[:n_modes], key=lambda t: t[0])
+    lo_f = min(fk * max(0.4, 1 - 3 / qk) for fk, qk in peaks)
+    hi_f = max(fk * min(2.0, 1 + 3 / qk) for fk, qk in peaks)
+    band = band_hz or (max(lo_f, tf.excited_band_hz[0]), min(hi_f, tf.excited_band_hz[1]))
+    idx = np.flatnonzero((tf.freqs_hz >= band[0]) & (tf.freqs_hz <= band[1]) & np.isfinite(tf.h))
+    if idx.size < MIN_POINTS + 3 * n_modes:
+        raise FitError(f"only {idx.size} frequency points in {band[0]:.1f} to {band[1]:.1f} Hz")
+    f, h = tf.freqs_hz[idx], tf.h[idx]
+    sig = tf.sigma(None, idx) / math.sqrt(2)
+    weighted = bool(np.all(np.isfinite(sig)))
+    if not weighted:
+        sig = np.ones(f.size)
+    sig = np.maximum(sig, 1e-30)
+    w = 1 / sig**2
+    f1, q1 = peaks[0]
+    n_bg = background_order + 1 if background_order >= 0 else 0
+    tau0, gains = _start_gains(f, h, w, peaks, complex_gain=bool(n_bg))
+    sign = 1.0
+    if not n_bg and gains[0].real < 0:
+        sign = -1.0
+    params = lmfit.Parameters()
+    for k, (fk, qk) in enumerate(peaks):
+        params.add(f"f{k}", value=fk, min=band[0], max=band[1])
+        params.add(f"q{k}", value=qk, min=0.2, max=1e5)
+        if n_bg and k == 0:
+            params.add(f"g{k}", value=1.0, vary=False)
+        elif n_bg:
+            params.add(f"g{k}", value=float((gains[k] / gains[0]).real))
+        elif k == 0:
+            params.add(f"g{k}", value=abs(gains[0].real), min=0.0)
+        else:
+            params.add(f"g{k}", value=float(sign * gains[k].real))
+    params.add("tau", value=tau0, min=-MAX_DELAY_S, max=MAX_DELAY_S)
+    c0 = gains[0] if n_bg else 1.0
+    for j in range(n_bg):
+        params.add(f"b{j}r", value=c0.real if j == 0 else 0.0)
+        params.add(f"b{j}i", value=c0.imag if j == 0 else 0.0)
+
+    names = list(params.keys())
+
+    def vec(pv: lmfit.Parameters) -> NDArray[np.float64]:
+        return np.array([pv[k].value for k in names])
+
+    def resid_vec(v: NDArray[np.float64]) -> NDArray[np.float64]:
+        d = (h - _model(v, f, n_modes, n_bg, sign)) / sig
+        return np.concatenate([d.real, d.imag])
+
+    res = lmfit.minimize(lambda pv: resid_vec(vec(pv)), params, method="least_squares",
+                         x_scale="jac")
+    if not res.success:
+        raise FitError(f"the multi-mode fit did not converge ({res.message})")
+    v = vec(res.params)
+    free = [i for i, k in enumerate(names) if res.params[k].vary]
+
+    def resid_free(u: NDArray[np.float64]) -> NDArray[np.float64]:
+        full = v.copy()
+        full[free] = u
+        return resid_vec(full)
+
+    cov_free = covariance(resid_free, v[free])
+    chi2 = float(np.sum(resid_vec(v) ** 2))
+    dof = max(1, 2 * f.size - len(free))
+    redchi = chi2 / dof
+    scale = math.sqrt(max(1.0, redchi)) if weighted else math.sqrt(redchi)
+    se = np.zeros(v.size)
+    se[free] = np.sqrt(np.diag(cov_free)) * scale
+    modes = tuple(Mode(v[3 * k], se[3 * k], v[3 * k + 1], se[3 * k + 1], v[3 * k + 2],
+                       se[3 * k + 2]) for k in range(n_modes))
+    bg = tuple(complex(v[3 * n_modes + 1 + 2 * j], v[3 * n_modes + 2 + 2 * j])
+               for j in range(n_bg))
+    return ModesFit(modes, float(v[3 * n_modes]), float(se[3 * n_modes]), sign, bg,
+                    (float(band[0]), float(band[1])), int(f.size), redchi, scale,
+                    "noise-estimate" if weighted else "residuals")
