@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import asdict, dataclass
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 if TYPE_CHECKING:
     from .audio import ClipReport
@@ -31,6 +31,18 @@ POOR_FIT_Q_REL_STDERR = 0.25
 OUT_OF_BAND_HALF_WIDTHS = 4.0
 #: Window shorter than this many ringing time constants Q/(pi f0) biases Q low.
 MIN_WINDOW_TIME_CONSTANTS = 7.0
+#: Median per-bin SNR of H in the fit band (|H| over its noise) below which the fit
+#: band is noise-dominated.
+LOW_SNR_DB = 10.0
+#: Lowest ordinary coherence allowed in the fit band (cross-spectral paths).
+LOW_COHERENCE = 0.8
+#: Inside THD at f0 exceeding the outside THD by this much (and by the factor
+#: below) is evidence of nonlinear drive in the neck rather than of the loudspeaker.
+NONLINEAR_THD_EXCESS = 0.03
+NONLINEAR_THD_RATIO = 2.0
+#: Circle fit and oscillator fit disagree when they differ by more than this many
+#: combined standard errors.
+METHODS_DISAGREE_SIGMAS = 4.0
 
 
 @dataclass(frozen=True, slots=True)
@@ -132,8 +144,60 @@ def check_weighting(fit: FitResult) -> list[Flag]:
     if fit.weighting == "noise-estimate":
         return []
     return [Flag("no-noise-estimate", "info",
-                 "no noise-only stretch was found to weight the fit; standard errors come "
-                 "from the residuals (record a longer silent tail after the sweep)")]
+                 "the noise per bin is unknown (an imported transfer function, or no "
+                 "noise-only stretch after the ringing: record a longer silent tail), so "
+                 "the fit used equal weights and its errors come from the residuals")]
+
+
+def check_signal_quality(quality: dict[str, Any], has_coherence: bool) -> list[Flag]:
+    out = []
+    snr = quality.get("snr_db_in_band")
+    if snr is not None and snr < LOW_SNR_DB:
+        out.append(Flag("low-snr", "warning",
+                        f"median SNR of H in the fit band is {snr:.1f} dB (< {LOW_SNR_DB:g} dB): "
+                        "raise the drive level, average longer or lower the noise"))
+    coh = quality.get("coherence_min_in_band")
+    if has_coherence and coh is not None and coh < LOW_COHERENCE:
+        out.append(Flag("low-coherence", "warning",
+                        f"coherence falls to {coh:.2f} in the fit band (< {LOW_COHERENCE:g}): "
+                        "noise or other sources at one microphone; record longer or louder"))
+    return out
+
+
+def check_nonlinear_drive(quality: dict[str, Any]) -> list[Flag]:
+    ti, to = quality.get("thd_inside_at_f0"), quality.get("thd_outside_at_f0")
+    if ti is None or to is None:
+        return []
+    if ti - to > NONLINEAR_THD_EXCESS and ti > NONLINEAR_THD_RATIO * to:
+        return [Flag("nonlinear-drive", "warning",
+                     f"THD inside the cavity at f0 is {100 * ti:.1f} % against {100 * to:.1f} % "
+                     "outside: the neck flow is nonlinear at this level, so the fitted Q "
+                     "depends on level; measure again 10 dB lower")]
+    return []
+
+
+def check_methods_agree(fit: FitResult, circle: dict[str, float]) -> list[Flag]:
+    df = circle["f0_hz"] - fit.f0_hz
+    dq = circle["q"] - fit.q
+    sf = math.hypot(fit.f0_stderr_hz, circle["f0_stderr_hz"])
+    sq = math.hypot(fit.q_stderr, circle["q_stderr"])
+    k = METHODS_DISAGREE_SIGMAS
+    if abs(df) <= k * sf and abs(dq) <= k * sq:
+        return []
+    return [Flag("methods-disagree", "warning",
+                 f"circle fit gives f0 {circle['f0_hz']:.3f} Hz, Q {circle['q']:.2f} against "
+                 f"{fit.f0_hz:.3f} Hz, {fit.q:.2f} from the oscillator fit (more than {k:g} "
+                 "combined standard errors apart): the response is not a single clean mode")]
+
+
+def check_multiple_peaks(fit: FitResult, peaks: list[tuple[float, float]]) -> list[Flag]:
+    others = [p for p in peaks if abs(p[0] - fit.f0_hz) > fit.f0_hz / fit.q]
+    if not others:
+        return []
+    where = ", ".join(f"{p[0]:.1f} Hz" for p in others[:3])
+    return [Flag("multiple-peaks", "warning",
+                 f"{len(others)} other resonance peak(s) in the fit band ({where}); if they "
+                 f"are real modes, fit them together (--modes {min(6, 1 + len(others))})")]
 
 
 def worst_severity(flags: list[Flag]) -> str | None:

@@ -113,11 +113,21 @@ def sweep(out: Path, force: bool, **kw: Any) -> None:
 
 
 @main.command()
-@click.argument("recording", type=click.Path(path_type=Path))
+@click.argument("recording", type=click.Path(path_type=Path), required=False)
 @click.option("--object", "object_path", type=click.Path(path_type=Path),
               help="Object file (TOML) with the geometry.")
 @click.option("--sweep", "sweep_path", type=click.Path(path_type=Path),
               help="The sweep WAV that was played (deconvolution); without it, H1.")
+@click.option("--excitation", "excitation_path", type=click.Path(path_type=Path),
+              help="Any other excitation that was played (one-microphone recordings).")
+@click.option("--transfer", "transfer_path", type=click.Path(path_type=Path),
+              help="Fit a measured transfer function (CSV: frequency and real/imag or "
+                   "dB/degrees) instead of a recording.")
+@click.option("--method", type=click.Choice(["auto", "sweep", "h1", "h2", "one-channel",
+                                             "ringdown", "csv"]), default="auto",
+              show_default=True, help="How the recording was made; auto picks from the inputs.")
+@click.option("--modes", type=int, default=None,
+              help="Fit this many resonances together (e.g. a bottle's body mode).")
 @click.option("--inside", type=int, default=1, show_default=True,
               help="Channel (from 1) of the microphone inside the cavity.")
 @click.option("--outside", type=int, default=2, show_default=True,
@@ -140,12 +150,19 @@ def sweep(out: Path, force: bool, **kw: Any) -> None:
 @click.option("--strict", is_flag=True, help="Exit 1 when any warning or error flag is raised.")
 @click.option("--force", is_flag=True, help="Overwrite an existing result in --out.")
 @handles_errors
-def fit(recording: Path, object_path: Path | None, sweep_path: Path | None, inside: int,
+def fit(recording: Path | None, object_path: Path | None, sweep_path: Path | None,
+        excitation_path: Path | None, transfer_path: Path | None, method: str,
+        modes: int | None, inside: int,
         outside: int, band: tuple[float, float] | None, temperature_c: float | None,
         relative_humidity: float | None, pressure_pa: float | None, tolerance: float | None,
         window_ms: float | None, out_dir: Path | None, as_json: bool, strict: bool,
         force: bool) -> None:
-    """Fit f0, Q, gain and delay to a two-microphone RECORDING."""
+    """Fit f0, Q, gain and delay to a RECORDING (or a measured --transfer CSV).
+
+    Two microphones (inside the cavity, just outside the mouth) with the sweep
+    that was played, or with any broadband signal (H1); the inside microphone
+    alone with the excitation file, or with taps and pops (ringdown).
+    """
     from .checks import F0_TOLERANCE
     from .fileio import check_writable
 
@@ -153,30 +170,39 @@ def fit(recording: Path, object_path: Path | None, sweep_path: Path | None, insi
     if out_dir is not None:
         if out_dir.exists() and not out_dir.is_dir():
             raise InputError(str(out_dir), None, "--out must be a directory")
-        targets = [out_dir / "result.json", out_dir / "response.png"]
+        targets = [out_dir / "result.json", out_dir / "response.png", out_dir / "transfer.csv"]
         for t in targets:
             check_writable(t, force=force)
     from .pipeline import analyze
     from .report.document import to_json, write_document
     from .report.text import summary
 
-    result = analyze(recording, object_path=object_path, sweep_path=sweep_path, inside=inside,
+    result = analyze(recording, object_path=object_path, sweep_path=sweep_path,
+                     excitation_path=excitation_path, transfer_path=transfer_path,
+                     method=method, modes=modes, inside=inside,
                      outside=outside, band_hz=band, temperature_c=temperature_c,
                      relative_humidity=relative_humidity, pressure_pa=pressure_pa,
                      tolerance=F0_TOLERANCE if tolerance is None else tolerance,
                      window_s=None if window_ms is None else window_ms / 1000.0)
     doc = result.to_dict()
+    written = []
     if out_dir is not None:
-        from .report.plots import response_plot
+        from .report.plots import decay_plot, response_plot
 
-        write_document(targets[0], doc)
-        response_plot(result, targets[1])
+        written.append(write_document(targets[0], doc))
+        if result.transfer is not None:
+            written.append(response_plot(result, targets[1]))
+            from .transfer_csv import write_transfer_csv
+
+            written.append(write_transfer_csv(targets[2], result.transfer))
+        else:
+            written.append(decay_plot(result, targets[1]))
     if as_json:
         click.echo(to_json(doc), nl=False)
     else:
         click.echo(summary(doc))
-        if out_dir is not None:
-            click.echo(f"wrote {targets[0]} and {targets[1]}")
+        if written:
+            click.echo("wrote " + ", ".join(str(w) for w in written))
     if strict and any(f.severity in ("warning", "error") for f in result.flags):
         sys.exit(1)
 

@@ -5,16 +5,31 @@
 
 Everything the ``fit`` command does is :func:`analyze`; the command line only
 parses options, calls it and writes what it returns.
+
+Ways of recording (``method``; ``auto`` picks from what is given):
+
+========================  ==================================================
+``sweep``                 two microphones, the sweep file: deconvolution
+``h1`` / ``h2``           two microphones, any broadband signal: cross-spectra
+``one-channel``           inside microphone + the excitation (sweep or any
+                          signal): loudspeaker and room are part of H, so the
+                          model gains a smooth background
+``ringdown``              inside microphone, free decays (tap, clap, pop)
+``csv``                   a measured transfer function exported as CSV
+========================  ==================================================
 """
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from . import SCHEMA, __version__
-from .audio import check_channel, check_not_silent, clip_report, read_audio
+from .audio import Recording, check_channel, check_not_silent, clip_report, read_audio
 from .checks import (
     F0_TOLERANCE,
     Flag,
@@ -23,11 +38,15 @@ from .checks import (
     check_f0_mismatch,
     check_fit_quality,
     check_in_band,
+    check_methods_agree,
+    check_multiple_peaks,
+    check_nonlinear_drive,
     check_polarity,
+    check_signal_quality,
     check_weighting,
     check_window,
 )
-from .errors import InputError
+from .errors import FitError, InputError
 from .fitting.fit import FitResult, fit_transfer
 from .physics.air import AirState, air_state
 from .physics.geometry import ResonatorObject, load_object
@@ -38,24 +57,28 @@ from .physics.helmholtz import (
     derive_from_f0,
     predict,
 )
-from .transfer import TransferFunction, cross_spectral_transfer, sweep_transfer
+from .transfer import TransferFunction
 
 #: Air defaults when neither the object file nor the command line gives a value.
 DEFAULT_AIR = {"temperature_c": 20.0, "relative_humidity": 0.5, "pressure_pa": 101325.0}
+METHODS = ("auto", "sweep", "h1", "h2", "one-channel", "ringdown", "csv")
+#: Order of the complex polynomial background on the one-microphone paths.
+BACKGROUND_ORDER = 3
 
 
 @dataclass(frozen=True)
 class InputInfo:
     recording: str
-    sample_rate_hz: float
-    inside_channel: int
-    outside_channel: int
+    sample_rate_hz: float | None
+    inside_channel: int | None
+    outside_channel: int | None
     method: str
     polarity_inverted: bool
     sweep: str | None = None
     sweep_parameters_from: str | None = None  # "sidecar" or "samples"
-    duration_s: float = 0.0
-    subtype: str = ""
+    excitation: str | None = None
+    duration_s: float | None = None
+    subtype: str | None = None
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -63,7 +86,8 @@ class InputInfo:
             "inside_channel": self.inside_channel, "outside_channel": self.outside_channel,
             "method": self.method, "polarity_inverted": self.polarity_inverted,
             "sweep": self.sweep, "sweep_parameters_from": self.sweep_parameters_from,
-            "duration_s": self.duration_s, "sample_format": self.subtype,
+            "excitation": self.excitation, "duration_s": self.duration_s,
+            "sample_format": self.subtype,
         }
 
 
@@ -75,34 +99,54 @@ class Result:
     air: AirState
     air_sources: dict[str, str]
     fit: FitResult
-    transfer: TransferFunction
+    transfer: TransferFunction | None
     prediction: Prediction | None = None
     derived: Derived | None = None
     object: ResonatorObject | None = None
     flags: list[Flag] = field(default_factory=list)
     tolerance: float = F0_TOLERANCE
+    modes: list[dict[str, float]] = field(default_factory=list)
+    circle: dict[str, float] | None = None
+    quality: dict[str, Any] = field(default_factory=dict)
+    decays: list[dict[str, float]] = field(default_factory=list)
+    background: list[list[float]] | None = None
+    signal: np.ndarray | None = None  # the ringdown channel (plots only)
+    modes_fit: Any = None  # fitting.modes.ModesFit when several modes or a background
+
+    def model(self, freqs_hz: np.ndarray) -> np.ndarray:
+        """The fitted model of H (all modes and the background) at ``freqs_hz``."""
+        if self.modes_fit is not None:
+            return np.asarray(self.modes_fit.model(np.asarray(freqs_hz, dtype=float)))
+        return self.fit.model(np.asarray(freqs_hz, dtype=float))
 
     def to_dict(self) -> dict[str, Any]:
         """The result document (schema ``characterize.result/1``, see docs/result-schema.md)."""
         tf = self.transfer
         air = self.air.to_dict()
         air["sources"] = dict(self.air_sources)
+        fit = self.fit.to_dict()
+        fit["modes"] = self.modes
+        fit["circle"] = self.circle
+        fit["background"] = self.background
+        if self.decays:
+            fit["decays"] = self.decays
         return {
             "schema": SCHEMA,
             "tool_version": __version__,
             "input": self.input.to_dict(),
             "air": air,
-            "fit": self.fit.to_dict(),
+            "fit": fit,
             "prediction": None if self.prediction is None else self.prediction.to_dict(),
             "derived": None if self.derived is None else self.derived.to_dict(),
             "object": None if self.object is None else self.object.to_dict(),
-            "transfer": {
+            "transfer": None if tf is None else {
                 "method": tf.method,
                 "resolution_hz": tf.resolution_hz,
                 "excited_band_hz": [float(tf.excited_band_hz[0]), float(tf.excited_band_hz[1])],
                 "window": None if tf.window is None else tf.window.to_dict(),
                 "averages": tf.averages,
             },
+            "quality": self.quality,
             "checks": {"f0_tolerance": self.tolerance,
                        "plausible_end_correction_over_radius":
                            list(PLAUSIBLE_END_CORRECTION_OVER_RADIUS)},
@@ -117,7 +161,7 @@ def resolve_air(obj: ResonatorObject | None, **cli: float | None
     sources = {k: "default" for k in values}
     if obj is not None:
         for k, v in obj.air.to_dict().items():
-            if v is not None:
+            if v is not None and k in values:
                 values[k], sources[k] = float(v), "object file"
     for k, v in cli.items():
         if v is not None:
@@ -128,32 +172,85 @@ def resolve_air(obj: ResonatorObject | None, **cli: float | None
         raise InputError("air", None, str(exc)) from None
 
 
-def analyze(recording: str | Path, *, object_path: str | Path | None = None,
-            sweep_path: str | Path | None = None, inside: int = 1, outside: int = 2,
-            band_hz: tuple[float, float] | None = None, temperature_c: float | None = None,
+def choose_method(method: str, n_channels: int | None, sweep: bool, excitation: bool,
+                  transfer: bool) -> str:
+    """The recording method for ``auto``, or a check that the given one fits the inputs."""
+    if method not in METHODS:
+        raise InputError("--method", None, f"must be one of {list(METHODS)}, got {method!r}")
+    if method == "auto":
+        if transfer:
+            return "csv"
+        if n_channels is not None and n_channels >= 2:
+            return "sweep" if sweep else "h1"
+        if sweep or excitation:
+            return "one-channel"
+        return "ringdown"
+    if method == "csv" and not transfer:
+        raise InputError("--method", None, "csv needs --transfer FILE.csv")
+    if method == "sweep" and not sweep:
+        raise InputError("--method", None, "sweep needs --sweep SWEEP.wav")
+    if method == "one-channel" and not (sweep or excitation):
+        raise InputError("--method", None, "one-channel needs --sweep or --excitation")
+    if method in ("sweep", "h1", "h2") and n_channels is not None and n_channels < 2:
+        raise InputError("--method", None, f"{method} needs two channels; this recording "
+                         "has one (use one-channel or ringdown)")
+    return method
+
+
+def _align_excitation(x: np.ndarray, y: np.ndarray, source: str) -> np.ndarray:
+    """The excitation ``x`` shifted to where it sits in the recording ``y``
+    (peak of the FFT cross-correlation), cut or padded to ``y``'s length."""
+    from scipy.signal import correlate
+
+    if x.size > y.size:
+        raise InputError(source, None, f"excitation ({x.size} samples) is longer than the "
+                         f"recording ({y.size} samples)")
+    c = correlate(y, x, mode="full", method="fft")
+    lag = int(np.argmax(np.abs(c))) - (x.size - 1)
+    out = np.zeros_like(y)
+    lo, hi = max(0, lag), min(y.size, lag + x.size)
+    if hi - lo < 0.5 * x.size:
+        raise InputError(source, None, "the excitation was not found in the recording")
+    out[lo:hi] = x[lo - lag:hi - lag]
+    return out
+
+
+def analyze(recording: str | Path | None, *, object_path: str | Path | None = None,
+            sweep_path: str | Path | None = None, excitation_path: str | Path | None = None,
+            transfer_path: str | Path | None = None, method: str = "auto", inside: int = 1,
+            outside: int = 2, band_hz: tuple[float, float] | None = None,
+            modes: int | None = None, temperature_c: float | None = None,
             relative_humidity: float | None = None, pressure_pa: float | None = None,
             tolerance: float = F0_TOLERANCE, window_s: float | None = None) -> Result:
-    """Fit one recording and check it against its geometry.
+    """Fit one recording (or a measured transfer function) and check it against
+    its geometry.
 
     Parameters
     ----------
-    recording : path
-        WAV/FLAC/AIFF with at least two channels.
+    recording : path or None
+        WAV/FLAC/AIFF; two channels for the sweep and cross-spectral paths, one
+        (or ``inside``) for one-channel and ringdown. None with ``transfer_path``.
     object_path : path, optional
         Object file (TOML) with the geometry; enables the prediction, the
         derived effective neck length and the mismatch checks.
-    sweep_path : path, optional
-        The sweep that was played: deconvolution path. Without it, H1.
+    sweep_path, excitation_path : path, optional
+        The sweep (deconvolution) or any other excitation that was played.
+    transfer_path : path, optional
+        A measured transfer function (CSV) instead of a recording.
+    method : str
+        One of :data:`METHODS`; ``auto`` picks from the inputs.
     inside, outside : int
         1-based channel numbers of the cavity and mouth microphones.
     band_hz : (lo, hi), optional
         Fit exactly this band (Hz); default automatic.
+    modes : int, optional
+        Fit this many resonances together (default 1).
     temperature_c, relative_humidity, pressure_pa : float, optional
         Air overrides (command line beats the object file beats the defaults).
     tolerance : float
         Relative f0 mismatch that raises ``f0-mismatch``.
     window_s : float, optional
-        Impulse-response window length (s) on the sweep path; default automatic.
+        Impulse-response window length (s) on the sweep paths; default automatic.
 
     Raises
     ------
@@ -162,66 +259,236 @@ def analyze(recording: str | Path, *, object_path: str | Path | None = None,
     FitError
         Readable data but no fit (exit status 1).
     """
-    rec = read_audio(recording, min_channels=2)
-    check_channel(rec, inside, "--inside")
-    check_channel(rec, outside, "--outside")
-    if inside == outside:
-        raise InputError(rec.path, "--inside/--outside",
-                         f"both are channel {inside}; the inside and outside microphones "
-                         "must be different channels")
-    check_not_silent(rec, inside, "inside")
-    check_not_silent(rec, outside, "outside")
     if not (0 < tolerance < 1):
         raise InputError("--tolerance", None, f"must be a fraction between 0 and 1, got {tolerance}")
+    if modes is not None and (modes < 1 or modes > 6):
+        raise InputError("--modes", None, f"must be 1 to 6, got {modes}")
+    if band_hz is not None and not (0 < band_hz[0] < band_hz[1]):
+        raise InputError("--band", None, f"need 0 < LO < HI, got {band_hz[0]:g} {band_hz[1]:g}")
+    if sweep_path is not None and excitation_path is not None:
+        raise InputError("--excitation", None, "give either --sweep or --excitation, not both")
+    rec: Recording | None = None
+    if transfer_path is None:
+        if recording is None:
+            raise InputError("fit", None, "give a RECORDING or --transfer FILE.csv")
+        rec = read_audio(recording, min_channels=1)
+    elif recording is not None:
+        raise InputError("--transfer", None, "give either a RECORDING or --transfer, not both")
+    chosen = choose_method(method, None if rec is None else rec.n_channels,
+                           sweep_path is not None, excitation_path is not None,
+                           transfer_path is not None)
     obj = load_object(object_path) if object_path is not None else None
     air, sources = resolve_air(obj, temperature_c=temperature_c,
                                relative_humidity=relative_humidity, pressure_pa=pressure_pa)
-    if band_hz is not None:
-        lo, hi = band_hz
-        if not (0 < lo < hi):
-            raise InputError("--band", None, f"need 0 < LO < HI, got {lo:g} {hi:g}")
-        if hi > rec.sample_rate_hz / 2:
-            raise InputError("--band", None, f"{lo:g} to {hi:g} Hz is outside the data "
-                             f"(0 to {rec.sample_rate_hz / 2:g} Hz at this sample rate)")
-    y_in = rec.channel(inside)
-    y_out = rec.channel(outside)
-    sweep_from = None
-    if sweep_path is not None:
-        from .excitation import load_sweep
+    if rec is not None and band_hz is not None and band_hz[1] > rec.sample_rate_hz / 2:
+        raise InputError("--band", None, f"{band_hz[0]:g} to {band_hz[1]:g} Hz is outside the "
+                         f"data (0 to {rec.sample_rate_hz / 2:g} Hz at this sample rate)")
 
-        sweep = load_sweep(sweep_path, rec.sample_rate_hz)
-        if rec.n_samples < sweep.samples.size - int(sweep.params.tail_s * rec.sample_rate_hz):
-            raise InputError(rec.path, None,
-                             f"recording ({rec.duration_s:.2f} s) is shorter than the sweep "
-                             f"({sweep.params.duration_s:.2f} s): it cannot hold the response")
-        sweep_from = "samples" if sweep.estimated else "sidecar"
-        tf = sweep_transfer(y_in, y_out, rec.sample_rate_hz, sweep, window_s=window_s)
+    two_mic = chosen in ("sweep", "h1", "h2")
+    flags: list[Flag] = []
+    sweep_from = None
+    if rec is not None:
+        check_channel(rec, inside, "--inside")
+        check_not_silent(rec, inside, "inside")
+        roles = {inside: "inside"}
+        if two_mic:
+            check_channel(rec, outside, "--outside")
+            if inside == outside:
+                raise InputError(rec.path, "--inside/--outside",
+                                 f"both are channel {inside}; the inside and outside "
+                                 "microphones must be different channels")
+            check_not_silent(rec, outside, "outside")
+            roles[outside] = "outside"
+        flags += check_clipping([clip_report(rec, c) for c in roles], roles)
+
+    if chosen == "ringdown":
+        assert rec is not None
+        return _ringdown(rec, inside, obj, air, sources, flags, tolerance)
+
+    tf: TransferFunction
+    if chosen == "csv":
+        from .transfer_csv import read_transfer_csv
+
+        assert transfer_path is not None
+        tf = read_transfer_csv(transfer_path)
     else:
-        tf = cross_spectral_transfer(y_in, y_out, rec.sample_rate_hz)
+        assert rec is not None
+        y_in = rec.channel(inside)
+        if chosen in ("sweep", "one-channel") and sweep_path is not None:
+            from .excitation import load_sweep
+
+            sweep = load_sweep(sweep_path, rec.sample_rate_hz)
+            if rec.n_samples < sweep.samples.size - int(sweep.params.tail_s * rec.sample_rate_hz):
+                raise InputError(rec.path, None,
+                                 f"recording ({rec.duration_s:.2f} s) is shorter than the sweep "
+                                 f"({sweep.params.duration_s:.2f} s): it cannot hold the response")
+            sweep_from = "samples" if sweep.estimated else "sidecar"
+            from .transfer import sweep_transfer
+
+            y_out = rec.channel(outside) if chosen == "sweep" else None
+            tf = sweep_transfer(y_in, y_out, rec.sample_rate_hz, sweep, window_s=window_s)
+        elif chosen == "one-channel":
+            from .audio import read_audio as _read
+
+            assert excitation_path is not None
+            exc = _read(excitation_path)
+            if exc.sample_rate_hz != rec.sample_rate_hz:
+                raise InputError(str(excitation_path), "sample rate",
+                                 f"excitation is at {exc.sample_rate_hz:g} Hz but the recording "
+                                 f"is at {rec.sample_rate_hz:g} Hz; resample one of them")
+            x = _align_excitation(exc.channel(1), y_in, str(excitation_path))
+            from .transfer import cross_spectral_transfer
+
+            tf = cross_spectral_transfer(y_in, x, rec.sample_rate_hz)
+            tf = _as_method(tf, "one-channel-excitation")
+        else:
+            from .transfer import cross_spectral_transfer
+
+            tf = cross_spectral_transfer(y_in, rec.channel(outside), rec.sample_rate_hz,
+                                         estimator=chosen)
     if band_hz is not None:
         f = tf.freqs_hz
         if band_hz[0] < f[1] or band_hz[1] > f[-1]:
             raise InputError("--band", None, f"{band_hz[0]:g} to {band_hz[1]:g} Hz is outside "
                              f"the data ({f[1]:.3g} to {f[-1]:.6g} Hz)")
-    fit = fit_transfer(tf, band_hz)
 
-    flags: list[Flag] = []
-    flags += check_clipping([clip_report(rec, inside), clip_report(rec, outside)],
-                            {inside: "inside", outside: "outside"})
+    one_mic = chosen == "one-channel"
+    n_modes = modes or 1
+    background = None
+    mf = None
+    if one_mic or n_modes > 1:
+        from .fitting.modes import fit_modes
+
+        mf = fit_modes(tf, n_modes, background_order=BACKGROUND_ORDER if one_mic else -1,
+                       band_hz=band_hz)
+        fit = _main_mode_result(mf, tf)
+        mode_list = [m.to_dict() for m in mf.modes]
+        if mf.background:
+            background = [[c.real, c.imag] for c in mf.background]
+    else:
+        fit = fit_transfer(tf, band_hz)
+        mode_list = [{"f0_hz": fit.f0_hz, "f0_stderr_hz": fit.f0_stderr_hz, "q": fit.q,
+                      "q_stderr": fit.q_stderr, "gain": fit.gain,
+                      "gain_stderr": fit.gain_stderr}]
+    circle = None
+    if not one_mic:
+        from .fitting.circle import circle_fit
+
+        try:
+            circle = circle_fit(tf.freqs_hz, tf.h, fit.f0_hz, fit.q, fit.delay_s,
+                                -1.0 if fit.polarity_inverted else 1.0)
+        except FitError:
+            circle = None
+    quality = signal_quality(tf, fit)
+
     flags += check_fit_quality(fit)
     flags += check_in_band(fit, tf.excited_band_hz)
     flags += check_window(tf, fit)
     flags += check_weighting(fit)
     flags += check_polarity(fit)
-    prediction = derived = None
-    if obj is not None:
-        prediction = predict(obj, air)
-        derived = derive_from_f0(fit.f0_hz, fit.f0_stderr_hz, obj, air)
-        flags += check_f0_mismatch(fit, prediction, tolerance)
-        flags += check_end_correction(derived, PLAUSIBLE_END_CORRECTION_OVER_RADIUS)
+    flags += check_signal_quality(quality, tf.coherence is not None and not one_mic)
+    flags += check_nonlinear_drive(quality)
+    if circle is not None:
+        flags += check_methods_agree(fit, circle.to_dict())
+    if n_modes == 1 and band_hz is None:
+        from .fitting.modes import find_resonances
+
+        flags += check_multiple_peaks(fit, find_resonances(tf, fit.band_hz))
+    prediction, derived = _geometry(obj, air, fit, flags, tolerance)
     info = InputInfo(
-        recording=str(recording), sample_rate_hz=rec.sample_rate_hz, inside_channel=inside,
-        outside_channel=outside, method=tf.method, polarity_inverted=fit.polarity_inverted,
+        recording=str(recording if recording is not None else transfer_path),
+        sample_rate_hz=None if rec is None else rec.sample_rate_hz,
+        inside_channel=None if rec is None else inside,
+        outside_channel=outside if two_mic else None, method=tf.method,
+        polarity_inverted=fit.polarity_inverted,
         sweep=None if sweep_path is None else str(sweep_path), sweep_parameters_from=sweep_from,
-        duration_s=rec.duration_s, subtype=rec.subtype)
-    return Result(info, air, sources, fit, tf, prediction, derived, obj, flags, tolerance)
+        excitation=None if excitation_path is None else str(excitation_path),
+        duration_s=None if rec is None else rec.duration_s,
+        subtype=None if rec is None else rec.subtype)
+    return Result(info, air, sources, fit, tf, prediction, derived, obj, flags, tolerance,
+                  modes=mode_list, circle=None if circle is None else circle.to_dict(),
+                  quality=quality, background=background, modes_fit=mf)
+
+
+def _as_method(tf: TransferFunction, method: str) -> TransferFunction:
+    from dataclasses import replace
+
+    return replace(tf, method=method)
+
+
+def _geometry(obj: ResonatorObject | None, air: AirState, fit: FitResult, flags: list[Flag],
+              tolerance: float) -> tuple[Prediction | None, Derived | None]:
+    if obj is None:
+        return None, None
+    prediction = predict(obj, air)
+    derived = derive_from_f0(fit.f0_hz, fit.f0_stderr_hz, obj, air)
+    flags += check_f0_mismatch(fit, prediction, tolerance)
+    flags += check_end_correction(derived, PLAUSIBLE_END_CORRECTION_OVER_RADIUS)
+    return prediction, derived
+
+
+def _main_mode_result(mf: Any, tf: TransferFunction) -> FitResult:
+    """The multi-mode fit's strongest-gain mode as the result's main fit."""
+    k = int(np.argmax([abs(m.gain) for m in mf.modes])) if not mf.background else 0
+    m = mf.modes[k]
+    gain = abs(mf.background[0]) if mf.background else abs(m.gain)
+    return FitResult(
+        f0_hz=m.f0_hz, f0_stderr_hz=m.f0_stderr_hz, q=m.q, q_stderr=m.q_stderr, gain=gain,
+        gain_stderr=m.gain_stderr, delay_s=mf.delay_s, delay_stderr_s=mf.delay_stderr_s,
+        polarity_inverted=bool(mf.sign < 0), band_hz=mf.band_hz, n_points=mf.n_points,
+        chi2=mf.reduced_chi2 * max(1, 2 * mf.n_points), reduced_chi2=mf.reduced_chi2,
+        stderr_scale=mf.stderr_scale, weighting=mf.weighting, correlation_f0_q=math.nan,
+        nfev=0, method="multi-mode" if len(mf.modes) > 1 else "oscillator-with-background")
+
+
+def signal_quality(tf: TransferFunction, fit: FitResult) -> dict[str, Any]:
+    """SNR and coherence in the fit band, THD at f0, window length."""
+    f = tf.freqs_hz
+    idx = np.flatnonzero((f >= fit.band_hz[0]) & (f <= fit.band_hz[1]))
+    q: dict[str, Any] = {"snr_db_in_band": None, "coherence_min_in_band": None,
+                         "thd_inside_at_f0": None, "thd_outside_at_f0": None,
+                         "window_ms": None if tf.window is None else 1000 * tf.window.length_s,
+                         "resolution_hz": tf.resolution_hz}
+    if idx.size:
+        sig = tf.sigma(np.abs(fit.model(f[idx])), idx)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            snr = np.abs(fit.model(f[idx])) / sig
+        snr = snr[np.isfinite(snr) & (snr > 0)]
+        if snr.size:
+            q["snr_db_in_band"] = float(20 * np.log10(np.median(snr)))
+        if tf.coherence is not None:
+            q["coherence_min_in_band"] = float(np.min(tf.coherence[idx]))
+    for key, arr in (("thd_inside_at_f0", tf.thd_inside), ("thd_outside_at_f0", tf.thd_outside)):
+        if arr is not None:
+            v = float(np.interp(fit.f0_hz, f, arr))
+            q[key] = v if math.isfinite(v) else None
+    return q
+
+
+def _ringdown(rec: Recording, channel: int, obj: ResonatorObject | None, air: AirState,
+              sources: dict[str, str], flags: list[Flag], tolerance: float) -> Result:
+    from .fitting.ringdown import combine, fit_ringdown
+
+    x = rec.channel(channel)
+    decays = fit_ringdown(x, rec.sample_rate_hz, rec.path)
+    f0, sf, q, sq = combine(decays)
+    redchi = float(np.mean([d.reduced_chi2 for d in decays]))
+    fit = FitResult(f0_hz=f0, f0_stderr_hz=sf, q=q, q_stderr=sq,
+                    gain=float(np.mean([d.amplitude for d in decays])), gain_stderr=math.nan,
+                    delay_s=0.0, delay_stderr_s=math.nan, polarity_inverted=False,
+                    band_hz=(math.nan, math.nan), n_points=int(sum(
+                        d.length_s * rec.sample_rate_hz for d in decays)),
+                    chi2=math.nan, reduced_chi2=redchi, stderr_scale=1.0,
+                    weighting="noise-estimate", correlation_f0_q=math.nan, nfev=0,
+                    method="damped-sinusoid")
+    flags += check_fit_quality(fit)
+    prediction, derived = _geometry(obj, air, fit, flags, tolerance)
+    info = InputInfo(recording=str(rec.path), sample_rate_hz=rec.sample_rate_hz,
+                     inside_channel=channel, outside_channel=None, method="ringdown",
+                     polarity_inverted=False, duration_s=rec.duration_s, subtype=rec.subtype)
+    pencil = [{"f0_hz": d.pencil_f0_hz, "q": d.pencil_q} for d in decays]
+    return Result(info, air, sources, fit, None, prediction, derived, obj, flags, tolerance,
+                  modes=[{"f0_hz": f0, "f0_stderr_hz": sf, "q": q, "q_stderr": sq,
+                          "gain": fit.gain, "gain_stderr": math.nan}],
+                  circle=None, quality={"decays": len(decays), "matrix_pencil": pencil},
+                  decays=[d.to_dict() for d in decays], signal=x)

@@ -106,8 +106,8 @@ def read_transfer_csv(path: str | Path) -> TransferFunction:
 
 
 def write_transfer_csv(path: str | Path, tf: TransferFunction) -> Path:
-    """Write H as CSV with columns frequency_hz, real, imag, magnitude_db, phase_deg
-    (and sigma when the noise is known)."""
+    """Write H inside its excited band as CSV with columns frequency_hz, real,
+    imag, magnitude_db, phase_deg (and sigma when the noise is known)."""
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     sig = tf.sigma()
@@ -116,8 +116,9 @@ def write_transfer_csv(path: str | Path, tf: TransferFunction) -> Path:
                + (["sigma"] if has_sigma else []))
     with np.errstate(divide="ignore"):
         mag = 20 * np.log10(np.abs(tf.h))
+    lo, hi = tf.excited_band_hz
     for k in range(tf.freqs_hz.size):
-        if not np.isfinite(tf.h[k]):
+        if not np.isfinite(tf.h[k]) or not (lo <= tf.freqs_hz[k] <= hi):
             continue
         row = [f"{tf.freqs_hz[k]:.9g}", f"{tf.h[k].real:.9g}", f"{tf.h[k].imag:.9g}",
                f"{mag[k]:.6f}", f"{np.degrees(np.angle(tf.h[k])):.6f}"]

@@ -36,6 +36,15 @@ def _registry() -> Any:
     return pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
 
 
+def _to_float(number: int | float, source: str, field: str) -> float:
+    """A TOML number as a float; integers beyond the float range (tomllib reads
+    integers of any size) are refused in one line."""
+    try:
+        return float(number)
+    except OverflowError:
+        raise InputError(source, field, f"the number {str(number)[:12]}... is too large") from None
+
+
 def _split(text: str, source: str, field: str) -> tuple[float, str]:
     if not isinstance(text, str):
         raise InputError(source, field, f"expected a string with a unit, got {text!r}")
@@ -96,7 +105,7 @@ def parse_temperature_c(text: Any, source: str, field: str) -> float:
     if isinstance(text, bool):
         raise InputError(source, field, f"expected a temperature such as '21 degC', got {text!r}")
     if isinstance(text, (int, float)):
-        value_c = float(text)
+        value_c = _to_float(text, source, field)
     else:
         value, unit = _split(text, source, field)
         if not unit:
@@ -131,7 +140,7 @@ def parse_fraction(text: Any, source: str, field: str) -> float:
                 raise InputError(source, field,
                                  f"expected a fraction 0..1 or '45 %', got {text!r}") from None
     elif isinstance(text, (int, float)):
-        value = float(text)
+        value = _to_float(text, source, field)
     else:
         raise InputError(source, field, f"expected a fraction 0..1 or '45 %', got {text!r}")
     if not (0.0 <= value <= 1.0) or not math.isfinite(value):

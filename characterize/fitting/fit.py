@@ -56,6 +56,9 @@ class FitResult:
     #: the complex-Gaussian likelihood with the per-bin noise model (unscaled).
     crlb_f0_hz: float = math.nan
     crlb_q: float = math.nan
+    #: "oscillator" (this module), "multi-mode", "oscillator-with-background"
+    #: (fitting.modes) or "damped-sinusoid" (fitting.ringdown)
+    method: str = "oscillator"
 
     def to_dict(self) -> dict[str, object]:
         d = asdict(self)

@@ -1,29 +1,51 @@
 """The object file: a resonator's geometry (and optional air conditions) in TOML.
 
-Example::
+A Helmholtz resonator (``kind = "helmholtz"``, the default)::
 
     name = "jar-07"                 # optional; defaults to the file stem
     [cavity]
-    volume = "355 mL"
+    volume = "355 mL"               # volume only, or a shape:
+    # shape = "sphere"    diameter
+    # shape = "cylinder"  diameter, length          (neck on an end face)
+    # shape = "box"       width, depth, height      (neck on the width x depth face)
+    # shape = "profile"   sections = [["62 mm", "90 mm"], ["30 mm", "25 mm"]]
+    #                     (diameter, length of stacked round sections, bottom up)
+    # volume_by_water = "355 g" and water_temperature = "19 degC" instead of volume
     [neck]
-    diameter = "18 mm"
+    diameter = "18 mm"              # shape = "round" (default)
     length = "40 mm"
+    # shape = "slot": width, height, length;  shape = "hole": diameter, wall_thickness
+    # count = 3                       (identical openings)
     outer_end = "unflanged"         # or "flanged"
     inner_end = "flanged"           # or "unflanged"
+    # outer_end_correction = "7 mm"   (explicit, replaces the formula for that end)
     [air]                           # optional; each key optional
     temperature = "21 degC"
     relative_humidity = 0.45        # or "45 %"
     pressure = "101.325 kPa"
+    co2 = "400 ppm"                 # or a fraction, or "0.04 %"
+
+A closed-open tube (``kind = "tube"``)::
+
+    kind = "tube"
+    [tube]
+    diameter = "20 mm"
+    length = "300 mm"
+    open_end = "unflanged"          # or "flanged"; open_end_correction optional
 
 :func:`load_object` reads a file, :func:`parse_object` an already-parsed
 mapping. Both return a :class:`ResonatorObject` in SI units, or raise
 :class:`~characterize.errors.InputError` with one line naming the file, the
 dotted field and what was expected.
 
-The parser is driven by :data:`_SECTIONS`: each table lists its keys, the
-kind of value each holds (which picks the parser in :data:`_PARSERS`) and
-whether it is required, plus a function building the dataclass. A new
-cavity shape is a new set of keys and a new builder.
+Equivalents used by the lumped formula (documented in docs/geometry.md):
+
+- ``Neck.area_m2`` is the total open area of all ``count`` openings;
+- ``Neck.radius_m`` and ``Neck.diameter_m`` belong to ONE opening; for a slot
+  they are those of the circle of the same area (equal-area radius), which
+  scales the end-correction plausibility range;
+- for a tube, ``cavity.volume_m3`` is the tube's own volume and ``neck`` is the
+  tube itself (``inner_end = "closed"``).
 """
 
 from __future__ import annotations
@@ -38,9 +60,15 @@ from typing import Any
 
 from ..errors import InputError
 from ..units import parse_fraction, parse_quantity, parse_temperature_c
+from .water import TANAKA_RANGE_C, volume_from_water_mass_m3
 
 __all__ = [
     "END_CONDITIONS",
+    "KINDS",
+    "CAVITY_SHAPES",
+    "NECK_SHAPES",
+    "VOLUME_CONSISTENCY_TOLERANCE",
+    "DEFAULT_WATER_TEMPERATURE_C",
     "Cavity",
     "Neck",
     "AirOverrides",
@@ -51,64 +79,281 @@ __all__ = [
 
 #: Allowed values of ``neck.outer_end`` and ``neck.inner_end``.
 END_CONDITIONS = ("flanged", "unflanged")
+#: Resonator kinds.
+KINDS = ("helmholtz", "tube")
+#: Cavity shapes and the dimension keys each one needs.
+CAVITY_SHAPES: dict[str, tuple[str, ...]] = {
+    "volume": (),
+    "sphere": ("diameter",),
+    "cylinder": ("diameter", "length"),
+    "box": ("width", "depth", "height"),
+    "profile": ("sections",),
+}
+#: Neck shapes and the dimension keys each one needs.
+NECK_SHAPES: dict[str, tuple[str, ...]] = {
+    "round": ("diameter", "length"),
+    "slot": ("width", "height", "length"),
+    "hole": ("diameter", "wall_thickness"),
+}
+#: A volume given beside a shape's dimensions must agree with them within this
+#: fraction; beyond it one of the two is wrong (common practice: a careful
+#: water fill and calliper readings of a regular vessel agree within a few %).
+VOLUME_CONSISTENCY_TOLERANCE = 0.05
+#: Water temperature assumed for ``volume_by_water`` when none is given, degC
+#: (5 K either way changes the volume by about 0.1 %).
+DEFAULT_WATER_TEMPERATURE_C = 20.0
+#: Largest CO2 mole fraction accepted (the range of Cramer's 1993 fit).
+MAX_CO2_FRACTION = 0.01
+
+
+# --------------------------------------------------------------------------
+# Dataclasses
+# --------------------------------------------------------------------------
 
 
 @dataclass(frozen=True, slots=True)
 class Cavity:
-    """The cavity, given by its volume.
+    """The cavity: its air volume and, when known, its shape.
 
     Attributes
     ----------
     volume_m3 : float
-        Air volume of the cavity, m^3.
+        Air volume, m^3 (the given or water-measured volume when there is
+        one, else the shape's).
+    shape : str
+        One of :data:`CAVITY_SHAPES` or ``"tube"`` (for ``kind = "tube"``).
+    diameter_m : float or None
+        Sphere or cylinder diameter, m.
+    length_m : float or None
+        Cylinder (or tube) length along the neck's axis, m.
+    width_m, depth_m, height_m : float or None
+        Box dimensions, m; the neck sits on the width x depth face and the
+        height runs along its axis.
+    sections : tuple of (diameter_m, length_m)
+        Profile sections from the bottom up, m.
+    volume_source : str
+        ``"given"``, ``"water"`` or ``"shape"``.
+    water_mass_kg, water_temperature_c : float or None
+        The fill that measured the volume (``volume_source == "water"``).
     """
 
     volume_m3: float
+    shape: str = "volume"
+    diameter_m: float | None = None
+    length_m: float | None = None
+    width_m: float | None = None
+    depth_m: float | None = None
+    height_m: float | None = None
+    sections: tuple[tuple[float, float], ...] = ()
+    volume_source: str = "given"
+    water_mass_kg: float | None = None
+    water_temperature_c: float | None = None
 
-    def to_dict(self) -> dict[str, float]:
-        return {"volume_m3": float(self.volume_m3)}
+    @property
+    def shape_volume_m3(self) -> float | None:
+        """Volume computed from the dimensions, m^3 (None for volume only)."""
+        if self.shape == "sphere":
+            assert self.diameter_m is not None
+            return math.pi * self.diameter_m**3 / 6.0
+        if self.shape in ("cylinder", "tube"):
+            assert self.diameter_m is not None and self.length_m is not None
+            return math.pi * self.diameter_m**2 / 4.0 * self.length_m
+        if self.shape == "box":
+            assert self.width_m and self.depth_m and self.height_m
+            return self.width_m * self.depth_m * self.height_m
+        if self.shape == "profile":
+            return sum(math.pi * d * d / 4.0 * ln for d, ln in self.sections)
+        return None
+
+    @property
+    def area_scale(self) -> float:
+        """Given volume over the shape's volume (1 for volume only): every
+        cross-section of the shape is scaled by it so the volumes agree."""
+        v = self.shape_volume_m3
+        return 1.0 if v is None else self.volume_m3 / v
+
+    @property
+    def axial_length_m(self) -> float | None:
+        """Depth of the cavity along the neck's axis, m (None for volume only)."""
+        if self.shape == "sphere":
+            return self.diameter_m
+        if self.shape in ("cylinder", "tube"):
+            return self.length_m
+        if self.shape == "box":
+            return self.height_m
+        if self.shape == "profile":
+            return sum(ln for _, ln in self.sections)
+        return None
+
+    @property
+    def neck_side_area_m2(self) -> float | None:
+        """Cross-section of the cavity where the neck joins it, m^2 (scaled to
+        the volume); for a sphere its equatorial section. None for volume only."""
+        s = self.area_scale
+        if self.shape in ("sphere", "cylinder", "tube"):
+            assert self.diameter_m is not None
+            return math.pi * self.diameter_m**2 / 4.0 * s
+        if self.shape == "box":
+            assert self.width_m and self.depth_m
+            return self.width_m * self.depth_m * s
+        if self.shape == "profile":
+            return math.pi * self.sections[-1][0] ** 2 / 4.0 * s
+        return None
+
+    @property
+    def neck_side_widths_m(self) -> tuple[float, float] | None:
+        """The two widths of the face that holds the neck (for fit checks), m."""
+        s = math.sqrt(self.area_scale)
+        if self.shape in ("sphere", "cylinder", "tube"):
+            assert self.diameter_m is not None
+            return (self.diameter_m * s, self.diameter_m * s)
+        if self.shape == "box":
+            assert self.width_m and self.depth_m
+            return (self.width_m * s, self.depth_m * s)
+        if self.shape == "profile":
+            d = self.sections[-1][0] * s
+            return (d, d)
+        return None
+
+    @property
+    def wall_area_m2(self) -> float:
+        r"""Inner wall area (openings not subtracted), m^2.
+
+        For volume only it is estimated as that of a cylinder as tall as it
+        is wide, :math:`A = 6\pi r^2` with :math:`r = (V/2\pi)^{1/3}`
+        (between a sphere's 4.84 and a cube's 6.00 :math:`V^{2/3}`).
+        """
+        s = self.area_scale
+        if self.shape == "sphere":
+            assert self.diameter_m is not None
+            return math.pi * self.diameter_m**2 * s ** (2.0 / 3.0)
+        if self.shape in ("cylinder", "tube"):
+            assert self.diameter_m is not None and self.length_m is not None
+            r = self.diameter_m / 2.0 * math.sqrt(s)
+            return 2.0 * math.pi * r * self.length_m + 2.0 * math.pi * r * r
+        if self.shape == "box":
+            assert self.width_m and self.depth_m and self.height_m
+            w, d = self.width_m * math.sqrt(s), self.depth_m * math.sqrt(s)
+            h = self.height_m
+            return 2.0 * (w * d + w * h + d * h)
+        if self.shape == "profile":
+            radii = [d / 2.0 * math.sqrt(s) for d, _ in self.sections]
+            side = sum(2.0 * math.pi * r * ln for r, (_, ln) in zip(radii, self.sections))
+            ends = math.pi * radii[0] ** 2 + math.pi * radii[-1] ** 2
+            steps = sum(abs(math.pi * (r1 * r1 - r0 * r0)) for r0, r1 in zip(radii, radii[1:]))
+            return side + ends + steps
+        r = (self.volume_m3 / (2.0 * math.pi)) ** (1.0 / 3.0)
+        return 6.0 * math.pi * r * r
+
+    def to_dict(self) -> dict[str, Any]:
+        d: dict[str, Any] = {
+            "volume_m3": float(self.volume_m3),
+            "shape": self.shape,
+            "volume_source": self.volume_source,
+            "axial_length_m": self.axial_length_m,
+            "wall_area_m2": float(self.wall_area_m2),
+        }
+        for key in ("diameter_m", "length_m", "width_m", "depth_m", "height_m",
+                    "water_mass_kg", "water_temperature_c"):
+            value = getattr(self, key)
+            if value is not None:
+                d[key] = float(value)
+        if self.sections:
+            d["sections_m"] = [[float(a), float(b)] for a, b in self.sections]
+        if self.shape_volume_m3 is not None:
+            d["shape_volume_m3"] = float(self.shape_volume_m3)
+        return d
 
 
 @dataclass(frozen=True, slots=True)
 class Neck:
-    """A round neck (or port) of uniform bore.
+    """The neck (port, hole or slot); ``count`` identical openings.
 
     Attributes
     ----------
     diameter_m : float
-        Inner diameter, m.
+        Inner diameter of one opening, m; for a slot the diameter of the
+        circle of the same area.
     length_m : float
-        Physical length, m (end corrections not included).
+        Physical length (wall thickness for a hole), m; end corrections not
+        included.
     outer_end : str
         Condition at the open end, one of :data:`END_CONDITIONS`.
     inner_end : str
-        Condition where the neck meets the cavity, one of :data:`END_CONDITIONS`.
+        Condition where the neck meets the cavity, one of
+        :data:`END_CONDITIONS` (``"closed"`` for the closed end of a tube).
+    shape : str
+        ``"round"``, ``"slot"`` or ``"hole"``.
+    width_m, height_m : float or None
+        Slot width and height, m.
+    count : int
+        Number of identical openings.
+    outer_end_correction_m, inner_end_correction_m : float or None
+        Explicit end corrections, m, replacing the formulas.
     """
 
     diameter_m: float
     length_m: float
     outer_end: str
     inner_end: str
+    shape: str = "round"
+    width_m: float | None = None
+    height_m: float | None = None
+    count: int = 1
+    outer_end_correction_m: float | None = None
+    inner_end_correction_m: float | None = None
 
     @property
     def radius_m(self) -> float:
-        """Inner radius, m."""
+        """Radius of one opening (equal-area radius for a slot), m."""
         return self.diameter_m / 2.0
 
     @property
-    def area_m2(self) -> float:
-        """Cross-section area, m^2."""
+    def opening_area_m2(self) -> float:
+        """Cross-section of one opening, m^2."""
+        if self.shape == "slot":
+            assert self.width_m is not None and self.height_m is not None
+            return self.width_m * self.height_m
         return math.pi * self.radius_m**2
 
-    def to_dict(self) -> dict[str, float | str]:
-        return {
+    @property
+    def area_m2(self) -> float:
+        """Total cross-section of all openings (the S of the lumped formula), m^2."""
+        return self.count * self.opening_area_m2
+
+    @property
+    def perimeter_m(self) -> float:
+        """Wetted perimeter of one opening, m."""
+        if self.shape == "slot":
+            assert self.width_m is not None and self.height_m is not None
+            return 2.0 * (self.width_m + self.height_m)
+        return math.pi * self.diameter_m
+
+    @property
+    def narrow_dimension_m(self) -> float:
+        """Diameter, or a slot's smaller side: the size the jet sees, m."""
+        if self.shape == "slot":
+            assert self.width_m is not None and self.height_m is not None
+            return min(self.width_m, self.height_m)
+        return self.diameter_m
+
+    def to_dict(self) -> dict[str, Any]:
+        d: dict[str, Any] = {
+            "shape": self.shape,
             "diameter_m": float(self.diameter_m),
             "length_m": float(self.length_m),
             "radius_m": float(self.radius_m),
             "area_m2": float(self.area_m2),
+            "opening_area_m2": float(self.opening_area_m2),
+            "count": int(self.count),
             "outer_end": self.outer_end,
             "inner_end": self.inner_end,
         }
+        for key in ("width_m", "height_m", "outer_end_correction_m", "inner_end_correction_m"):
+            value = getattr(self, key)
+            if value is not None:
+                d[key] = float(value)
+        return d
 
 
 @dataclass(frozen=True, slots=True)
@@ -123,18 +368,24 @@ class AirOverrides:
         Relative humidity as a fraction, 0..1.
     pressure_pa : float or None
         Static pressure, Pa.
+    co2_fraction : float or None
+        CO2 mole fraction, 1.
     """
 
     temperature_c: float | None = None
     relative_humidity: float | None = None
     pressure_pa: float | None = None
+    co2_fraction: float | None = None
 
     def to_dict(self) -> dict[str, float | None]:
-        return {
+        d: dict[str, float | None] = {
             "temperature_c": self.temperature_c,
             "relative_humidity": self.relative_humidity,
             "pressure_pa": self.pressure_pa,
         }
+        if self.co2_fraction is not None:
+            d["co2_fraction"] = self.co2_fraction
+        return d
 
     def air_state_kwargs(self) -> dict[str, float]:
         """The given values as keyword arguments for ``air.air_state``."""
@@ -155,6 +406,8 @@ class ResonatorObject:
     source_path : str
         The file it was read from (or the source name given to
         :func:`parse_object`).
+    kind : str
+        ``"helmholtz"`` or ``"tube"``.
     """
 
     name: str
@@ -162,11 +415,13 @@ class ResonatorObject:
     neck: Neck
     air: AirOverrides
     source_path: str
+    kind: str = "helmholtz"
 
     def to_dict(self) -> dict[str, Any]:
         """Plain-Python dict in SI units (JSON-safe)."""
         return {
             "name": self.name,
+            "kind": self.kind,
             "cavity": self.cavity.to_dict(),
             "neck": self.neck.to_dict(),
             "air": self.air.to_dict(),
@@ -175,16 +430,50 @@ class ResonatorObject:
 
     def to_file_data(self) -> dict[str, Any]:
         """The object-file mapping (unit strings) that parses back to this object."""
-        data: dict[str, Any] = {
-            "name": self.name,
-            "cavity": {"volume": f"{self.cavity.volume_m3!r} m**3"},
-            "neck": {
-                "diameter": f"{self.neck.diameter_m!r} m",
-                "length": f"{self.neck.length_m!r} m",
-                "outer_end": self.neck.outer_end,
-                "inner_end": self.neck.inner_end,
-            },
-        }
+        data: dict[str, Any] = {"name": self.name}
+        m = _unit_m
+        n, c = self.neck, self.cavity
+        if self.kind == "tube":
+            data["kind"] = "tube"
+            tube: dict[str, Any] = {"diameter": m(n.diameter_m), "length": m(n.length_m),
+                                    "open_end": n.outer_end}
+            if n.outer_end_correction_m is not None:
+                tube["open_end_correction"] = m(n.outer_end_correction_m)
+            data["tube"] = tube
+        else:
+            cav: dict[str, Any] = {}
+            if c.shape != "volume":
+                cav["shape"] = c.shape
+            if c.volume_source == "given":
+                cav["volume"] = f"{c.volume_m3!r} m**3"
+            elif c.volume_source == "water":
+                cav["volume_by_water"] = f"{c.water_mass_kg!r} kg"
+                cav["water_temperature"] = f"{c.water_temperature_c!r} degC"
+            for key in ("diameter", "length", "width", "depth", "height"):
+                value = getattr(c, f"{key}_m")
+                if value is not None:
+                    cav[key] = m(value)
+            if c.sections:
+                cav["sections"] = [[m(d), m(ln)] for d, ln in c.sections]
+            data["cavity"] = cav
+            neck: dict[str, Any] = {}
+            if n.shape != "round":
+                neck["shape"] = n.shape
+            if n.shape == "slot":
+                neck["width"], neck["height"] = m(n.width_m), m(n.height_m)  # type: ignore[arg-type]
+                neck["length"] = m(n.length_m)
+            elif n.shape == "hole":
+                neck["diameter"], neck["wall_thickness"] = m(n.diameter_m), m(n.length_m)
+            else:
+                neck["diameter"], neck["length"] = m(n.diameter_m), m(n.length_m)
+            if n.count != 1:
+                neck["count"] = n.count
+            neck["outer_end"], neck["inner_end"] = n.outer_end, n.inner_end
+            if n.outer_end_correction_m is not None:
+                neck["outer_end_correction"] = m(n.outer_end_correction_m)
+            if n.inner_end_correction_m is not None:
+                neck["inner_end_correction"] = m(n.inner_end_correction_m)
+            data["neck"] = neck
         air: dict[str, Any] = {}
         if self.air.temperature_c is not None:
             air["temperature"] = f"{self.air.temperature_c!r} degC"
@@ -192,23 +481,33 @@ class ResonatorObject:
             air["relative_humidity"] = self.air.relative_humidity
         if self.air.pressure_pa is not None:
             air["pressure"] = f"{self.air.pressure_pa!r} Pa"
+        if self.air.co2_fraction is not None:
+            air["co2"] = self.air.co2_fraction
         if air:
             data["air"] = air
         return data
 
 
+def _unit_m(value: float | None) -> str:
+    return f"{value!r} m"
+
+
 # --------------------------------------------------------------------------
-# Table-driven parser
+# Value parsers
 # --------------------------------------------------------------------------
 
 _EXAMPLES = {
     "length": "'18 mm'",
     "volume": "'355 mL'",
+    "mass": "'355 g'",
     "pressure": "'101.325 kPa'",
     "temperature": "'21 degC'",
     "fraction": "0.45 or '45 %'",
+    "co2": "'400 ppm', '0.04 %' or 0.0004",
     "end": " or ".join(repr(e) for e in END_CONDITIONS),
     "text": "'jar-07'",
+    "count": "3",
+    "sections": "[['62 mm', '90 mm'], ['30 mm', '25 mm']]",
 }
 
 
@@ -216,14 +515,6 @@ def _nearest(word: str, choices: list[str]) -> str:
     """``"did you mean 'x'? "`` for difflib's closest choice, else ``""``."""
     close = difflib.get_close_matches(word, choices, n=1, cutoff=0.5)
     return f"did you mean {close[0]!r}? " if close else ""
-
-
-def _quantity(dimension: str) -> Callable[[Any, str, str], float]:
-    def parse(value: Any, source: str, field: str) -> float:
-        _require_unit_string(value, dimension, source, field)
-        return parse_quantity(value, dimension, source, field, positive=True)
-
-    return parse
 
 
 def _require_unit_string(value: Any, kind: str, source: str, field: str) -> None:
@@ -238,6 +529,17 @@ def _require_unit_string(value: Any, kind: str, source: str, field: str) -> None
         source, field, f"expected a string with a unit, e.g. {_EXAMPLES[kind]}, "
         f"got {type(value).__name__} {value!r}"
     )
+
+
+def _quantity(dimension: str, positive: bool = True) -> Callable[[Any, str, str], float]:
+    def parse(value: Any, source: str, field: str) -> float:
+        _require_unit_string(value, dimension, source, field)
+        si = parse_quantity(value, dimension, source, field, positive=positive)
+        if si < 0:
+            raise InputError(source, field, f"{value!r} must not be negative")
+        return si
+
+    return parse
 
 
 def _temperature(value: Any, source: str, field: str) -> float:
@@ -266,67 +568,102 @@ def _text(value: Any, source: str, field: str) -> str:
     return value.strip()
 
 
+def _choice(allowed: tuple[str, ...], aliases: dict[str, str] | None = None
+            ) -> Callable[[Any, str, str], str]:
+    def parse(value: Any, source: str, field: str) -> str:
+        listed = ", ".join(repr(a) for a in allowed)
+        if not isinstance(value, str):
+            raise InputError(source, field, f"expected one of {listed}, got {value!r}")
+        word = value.strip().lower()
+        word = (aliases or {}).get(word, word)
+        if word not in allowed:
+            hint = _nearest(word, list(allowed))
+            raise InputError(source, field, f"unknown value {value!r}; {hint}allowed: {listed}")
+        return word
+
+    return parse
+
+
+def _count(value: Any, source: str, field: str) -> int:
+    if isinstance(value, bool) or not isinstance(value, int) or value < 1:
+        raise InputError(source, field, f"expected a whole number >= 1, e.g. 3, got {value!r}")
+    return int(value)
+
+
+def _co2(value: Any, source: str, field: str) -> float:
+    if isinstance(value, str) and value.strip().lower().endswith("ppm"):
+        try:
+            x = float(value.strip()[:-3]) * 1e-6
+        except ValueError:
+            raise InputError(source, field, f"expected e.g. {_EXAMPLES['co2']}, "
+                             f"got {value!r}") from None
+    else:
+        x = parse_fraction(value, source, field)
+    if not (math.isfinite(x) and 0.0 <= x <= MAX_CO2_FRACTION):
+        raise InputError(source, field, f"{value!r} is outside 0 to {MAX_CO2_FRACTION:g} "
+                         "(0 to 1 %, the range of Cramer's 1993 fit)")
+    return x
+
+
+def _sections(value: Any, source: str, field: str) -> tuple[tuple[float, float], ...]:
+    if not isinstance(value, list) or not value:
+        raise InputError(source, field, f"expected a list of [diameter, length] pairs from the "
+                         f"bottom up, e.g. {_EXAMPLES['sections']}, got {value!r}")
+    out = []
+    length = _quantity("length")
+    for i, pair in enumerate(value, start=1):
+        where = f"{field}[{i}]"
+        if not isinstance(pair, list) or len(pair) != 2:
+            raise InputError(source, where, f"expected [diameter, length] with units, "
+                             f"e.g. ['62 mm', '90 mm'], got {pair!r}")
+        out.append((length(pair[0], source, f"{where}.diameter"),
+                    length(pair[1], source, f"{where}.length")))
+    return tuple(out)
+
+
 #: kind of value -> parser(value, source, dotted_field)
 _PARSERS: dict[str, Callable[[Any, str, str], Any]] = {
     "length": _quantity("length"),
+    "length0": _quantity("length", positive=False),
     "volume": _quantity("volume"),
+    "mass": _quantity("mass"),
     "pressure": _quantity("pressure"),
     "temperature": _temperature,
     "fraction": parse_fraction,
+    "co2": _co2,
     "end": _end,
     "text": _text,
+    "kind": _choice(KINDS),
+    "cavity_shape": _choice(tuple(CAVITY_SHAPES), {"sphere": "sphere", "cuboid": "box"}),
+    "neck_shape": _choice(tuple(NECK_SHAPES), {"rectangular": "slot", "circular": "round"}),
+    "count": _count,
+    "sections": _sections,
 }
 
-
-@dataclass(frozen=True, slots=True)
-class _Field:
-    kind: str
-    required: bool = True
-
-
-@dataclass(frozen=True, slots=True)
-class _Section:
-    fields: dict[str, _Field]
-    build: Callable[[dict[str, Any]], Any]
-    required: bool = True
-
-
-_SECTIONS: dict[str, _Section] = {
-    "cavity": _Section(
-        fields={"volume": _Field("volume")},
-        build=lambda v: Cavity(volume_m3=v["volume"]),
-    ),
-    "neck": _Section(
-        fields={
-            "diameter": _Field("length"),
-            "length": _Field("length"),
-            "outer_end": _Field("end"),
-            "inner_end": _Field("end"),
-        },
-        build=lambda v: Neck(
-            diameter_m=v["diameter"],
-            length_m=v["length"],
-            outer_end=v["outer_end"],
-            inner_end=v["inner_end"],
-        ),
-    ),
-    "air": _Section(
-        fields={
-            "temperature": _Field("temperature", required=False),
-            "relative_humidity": _Field("fraction", required=False),
-            "pressure": _Field("pressure", required=False),
-        },
-        build=lambda v: AirOverrides(
-            temperature_c=v.get("temperature"),
-            relative_humidity=v.get("relative_humidity"),
-            pressure_pa=v.get("pressure"),
-        ),
-        required=False,
-    ),
+# table -> {key: kind of value}
+_TABLES: dict[str, dict[str, str]] = {
+    "cavity": {
+        "shape": "cavity_shape", "volume": "volume", "volume_by_water": "mass",
+        "water_temperature": "temperature", "diameter": "length", "length": "length",
+        "width": "length", "depth": "length", "height": "length", "sections": "sections",
+    },
+    "neck": {
+        "shape": "neck_shape", "diameter": "length", "width": "length", "height": "length",
+        "length": "length", "wall_thickness": "length", "count": "count",
+        "outer_end": "end", "inner_end": "end",
+        "outer_end_correction": "length0", "inner_end_correction": "length0",
+    },
+    "tube": {
+        "diameter": "length", "length": "length", "open_end": "end",
+        "open_end_correction": "length0",
+    },
+    "air": {
+        "temperature": "temperature", "relative_humidity": "fraction",
+        "pressure": "pressure", "co2": "co2",
+    },
 }
-
-#: top-level keys that are values, not tables
-_TOP_FIELDS: dict[str, _Field] = {"name": _Field("text", required=False)}
+_TOP_KEYS = {"name": "text", "kind": "kind"}
+_TOP_ORDER = ["name", "kind", "cavity", "neck", "tube", "air"]
 
 
 def _reject_unknown(keys: Mapping[str, Any], allowed: list[str], source: str, prefix: str) -> None:
@@ -339,25 +676,173 @@ def _reject_unknown(keys: Mapping[str, Any], allowed: list[str], source: str, pr
             )
 
 
-def _parse_section(name: str, table: Any, source: str) -> Any:
-    section = _SECTIONS[name]
+def _parse_table(name: str, table: Any, source: str) -> dict[str, Any]:
+    spec = _TABLES[name]
     if not isinstance(table, dict):
         raise InputError(
-            source, name, f"expected a table [{name}] with keys {', '.join(section.fields)}, "
+            source, name, f"expected a table [{name}] with keys {', '.join(spec)}, "
             f"got {type(table).__name__} {table!r}"
         )
-    _reject_unknown(table, list(section.fields), source, f"{name}.")
-    values: dict[str, Any] = {}
-    for key, spec in section.fields.items():
-        field = f"{name}.{key}"
-        if key not in table:
-            if spec.required:
-                raise InputError(
-                    source, field, f"missing required field (expected e.g. {_EXAMPLES[spec.kind]})"
-                )
-            continue
-        values[key] = _PARSERS[spec.kind](table[key], source, field)
-    return section.build(values)
+    _reject_unknown(table, list(spec), source, f"{name}.")
+    return {key: _PARSERS[spec[key]](value, source, f"{name}.{key}")
+            for key, value in table.items()}
+
+
+def _missing(source: str, field: str, kind: str) -> InputError:
+    return InputError(source, field, f"missing required field (expected e.g. {_EXAMPLES[kind]})")
+
+
+def _fmt_ml(v: float) -> str:
+    return f"{v * 1e6:.4g} mL"
+
+
+# --------------------------------------------------------------------------
+# Builders
+# --------------------------------------------------------------------------
+
+
+def _build_cavity(v: dict[str, Any], raw: Mapping[str, Any], source: str) -> Cavity:
+    dims = [k for k in ("diameter", "length", "width", "depth", "height", "sections") if k in v]
+    shape = v.get("shape")
+    if shape is None:
+        if dims:
+            raise InputError(source, "cavity.shape", f"dimensions given ({', '.join(dims)}) but "
+                             "no shape; add shape = 'sphere', 'cylinder', 'box' or 'profile'")
+        shape = "volume"
+    needed = CAVITY_SHAPES[shape]
+    for key in dims:
+        if key not in needed:
+            uses = ", ".join(needed) if needed else "no dimensions"
+            raise InputError(source, f"cavity.{key}", f"not used by shape {shape!r} (it takes "
+                             f"{uses})")
+    for key in needed:
+        if key not in v:
+            kind = "sections" if key == "sections" else "length"
+            raise _missing(source, f"cavity.{key}", kind)
+    if "volume" in v and "volume_by_water" in v:
+        raise InputError(source, "cavity.volume_by_water", "give either volume or "
+                         "volume_by_water, not both")
+    if "water_temperature" in v and "volume_by_water" not in v:
+        raise InputError(source, "cavity.water_temperature", "only used with volume_by_water")
+    water_mass = water_t = None
+    if "volume_by_water" in v:
+        water_mass = v["volume_by_water"]
+        water_t = v.get("water_temperature", DEFAULT_WATER_TEMPERATURE_C)
+        lo, hi = TANAKA_RANGE_C
+        if not lo <= water_t <= hi:
+            raise InputError(source, "cavity.water_temperature", f"{raw.get('water_temperature')!r}"
+                             f" is outside {lo:g} to {hi:g} degC (liquid water, Tanaka 2001)")
+        volume: float | None = volume_from_water_mass_m3(water_mass, water_t)
+        vsource = "water"
+    elif "volume" in v:
+        volume, vsource = v["volume"], "given"
+    else:
+        volume, vsource = None, "shape"
+    cav = Cavity(
+        volume_m3=1.0, shape=shape, diameter_m=v.get("diameter"), length_m=v.get("length"),
+        width_m=v.get("width"), depth_m=v.get("depth"), height_m=v.get("height"),
+        sections=v.get("sections", ()),
+    )
+    shape_volume = cav.shape_volume_m3
+    if volume is None:
+        if shape_volume is None:
+            raise InputError(source, "cavity.volume", "missing required field (expected e.g. "
+                             f"{_EXAMPLES['volume']}, or volume_by_water, or a shape)")
+        volume = shape_volume
+    elif shape_volume is not None:
+        rel = volume / shape_volume - 1.0
+        if abs(rel) > VOLUME_CONSISTENCY_TOLERANCE:
+            field = "cavity.volume_by_water" if vsource == "water" else "cavity.volume"
+            raise InputError(
+                source, field, f"{_fmt_ml(volume)} disagrees with the {shape}'s "
+                f"{_fmt_ml(shape_volume)} from its dimensions ({100 * rel:+.1f} %, more than "
+                f"{100 * VOLUME_CONSISTENCY_TOLERANCE:g} %): correct one of them")
+    return Cavity(
+        volume_m3=volume, shape=shape, diameter_m=cav.diameter_m, length_m=cav.length_m,
+        width_m=cav.width_m, depth_m=cav.depth_m, height_m=cav.height_m,
+        sections=cav.sections, volume_source=vsource, water_mass_kg=water_mass,
+        water_temperature_c=water_t,
+    )
+
+
+def _build_neck(v: dict[str, Any], source: str) -> Neck:
+    shape = v.get("shape", "round")
+    needed = NECK_SHAPES[shape]
+    if shape == "hole" and "length" in v:
+        if "wall_thickness" in v:
+            raise InputError(source, "neck.length", "a hole's length is its wall_thickness; "
+                             "give one of them")
+        v = {**v, "wall_thickness": v["length"]}
+        del v["length"]
+    for key in ("diameter", "width", "height", "length", "wall_thickness"):
+        if key in v and key not in needed:
+            raise InputError(source, f"neck.{key}", f"not used by shape {shape!r} (it takes "
+                             f"{', '.join(needed)})")
+    for key in needed:
+        if key not in v:
+            raise _missing(source, f"neck.{key}", "length")
+    ends = {}
+    for key in ("outer_end", "inner_end"):
+        if key in v:
+            ends[key] = v[key]
+        elif shape == "hole":
+            ends[key] = "flanged"  # a hole in a wall is baffled on both sides
+        else:
+            raise _missing(source, f"neck.{key}", "end")
+    if shape == "slot":
+        width, height = v["width"], v["height"]
+        diameter = 2.0 * math.sqrt(width * height / math.pi)
+        length = v["length"]
+    else:
+        width = height = None
+        diameter = v["diameter"]
+        length = v["length"] if shape == "round" else v["wall_thickness"]
+    return Neck(
+        diameter_m=diameter, length_m=length, outer_end=ends["outer_end"],
+        inner_end=ends["inner_end"], shape=shape, width_m=width, height_m=height,
+        count=v.get("count", 1), outer_end_correction_m=v.get("outer_end_correction"),
+        inner_end_correction_m=v.get("inner_end_correction"),
+    )
+
+
+def _build_tube(v: dict[str, Any], source: str) -> tuple[Cavity, Neck]:
+    for key, kind in (("diameter", "length"), ("length", "length"), ("open_end", "end")):
+        if key not in v:
+            raise _missing(source, f"tube.{key}", kind)
+    d, length = v["diameter"], v["length"]
+    neck = Neck(diameter_m=d, length_m=length, outer_end=v["open_end"], inner_end="closed",
+                outer_end_correction_m=v.get("open_end_correction"))
+    cavity = Cavity(volume_m3=math.pi * d * d / 4.0 * length, shape="tube", diameter_m=d,
+                    length_m=length, volume_source="shape")
+    return cavity, neck
+
+
+def _check_fit(cavity: Cavity, neck: Neck, source: str) -> None:
+    """The neck must fit on the cavity face it opens into."""
+    widths = cavity.neck_side_widths_m
+    side_area = cavity.neck_side_area_m2
+    if widths is None or side_area is None or cavity.shape == "sphere":
+        # a sphere's neck sits on a curved shell: only its total area is checked
+        if cavity.shape == "sphere" and side_area is not None and neck.area_m2 >= side_area:
+            raise InputError(source, "neck", "the openings' total area exceeds the sphere's "
+                             "cross-section")
+        return
+    face = sorted(widths)
+    if neck.shape == "slot":
+        assert neck.width_m is not None and neck.height_m is not None
+        slot = sorted((neck.width_m, neck.height_m))
+        if slot[1] > face[1] or slot[0] > face[0]:
+            raise InputError(
+                source, "neck.width", f"the slot ({1e3 * neck.width_m:.4g} x "
+                f"{1e3 * neck.height_m:.4g} mm) is wider than the cavity face it opens into "
+                f"({1e3 * face[1]:.4g} x {1e3 * face[0]:.4g} mm)")
+    elif neck.diameter_m > face[0]:
+        raise InputError(source, "neck.diameter", f"{1e3 * neck.diameter_m:.4g} mm is wider "
+                         f"than the cavity face it opens into ({1e3 * face[0]:.4g} mm)")
+    if neck.area_m2 >= side_area:
+        raise InputError(source, "neck.count", f"the {neck.count} openings' total area "
+                         f"({1e6 * neck.area_m2:.4g} mm^2) is not smaller than the cavity's "
+                         f"cross-section ({1e6 * side_area:.4g} mm^2)")
 
 
 def parse_object(data: Mapping[str, Any], source: str) -> ResonatorObject:
@@ -384,26 +869,34 @@ def parse_object(data: Mapping[str, Any], source: str) -> ResonatorObject:
     source = str(source)
     if not isinstance(data, Mapping):
         raise InputError(source, None, f"expected a TOML table at top level, got {data!r}")
-    allowed = list(_TOP_FIELDS) + list(_SECTIONS)
-    _reject_unknown(data, allowed, source, "")
-    for name, section in _SECTIONS.items():
-        if section.required and name not in data:
-            keys = ", ".join(section.fields)
+    _reject_unknown(data, _TOP_ORDER, source, "")
+    kind = _PARSERS["kind"](data["kind"], source, "kind") if "kind" in data else "helmholtz"
+    needed = ("tube",) if kind == "tube" else ("cavity", "neck")
+    for name in needed:
+        if name not in data:
+            keys = ", ".join(_TABLES[name])
             raise InputError(source, name, f"missing required table [{name}] (keys: {keys})")
-    parsed = {
-        name: _parse_section(name, data[name], source) if name in data else None
-        for name in _SECTIONS
-    }
-    name = (
-        _PARSERS["text"](data["name"], source, "name") if "name" in data else Path(source).stem
+    for name in ("cavity", "neck", "tube"):
+        if name in data and name not in needed:
+            raise InputError(source, name, f"[{name}] is not used by kind = {kind!r} (it takes "
+                             f"{', '.join('[' + n + ']' for n in needed)})")
+    name = _text(data["name"], source, "name") if "name" in data else Path(source).stem
+    air_values = _parse_table("air", data["air"], source) if "air" in data else {}
+    air = AirOverrides(
+        temperature_c=air_values.get("temperature"),
+        relative_humidity=air_values.get("relative_humidity"),
+        pressure_pa=air_values.get("pressure"),
+        co2_fraction=air_values.get("co2"),
     )
-    return ResonatorObject(
-        name=name,
-        cavity=parsed["cavity"],
-        neck=parsed["neck"],
-        air=parsed["air"] if parsed["air"] is not None else AirOverrides(),
-        source_path=source,
-    )
+    if kind == "tube":
+        cavity, neck = _build_tube(_parse_table("tube", data["tube"], source), source)
+    else:
+        raw_cavity = data["cavity"]
+        cavity = _build_cavity(_parse_table("cavity", raw_cavity, source), raw_cavity, source)
+        neck = _build_neck(_parse_table("neck", data["neck"], source), source)
+        _check_fit(cavity, neck, source)
+    return ResonatorObject(name=name, cavity=cavity, neck=neck, air=air, source_path=source,
+                           kind=kind)
 
 
 def load_object(path: str | Path) -> ResonatorObject:
@@ -422,8 +915,8 @@ def load_object(path: str | Path) -> ResonatorObject:
     ------
     InputError
         The file is missing or unreadable, is not UTF-8 TOML (the message
-        gives tomllib's line and column), or a field is missing, unknown or
-        malformed.
+        gives tomllib's line and column), or a field is missing, unknown,
+        malformed or inconsistent with another.
     """
     source = str(path)
     try:

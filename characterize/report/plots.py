@@ -74,7 +74,7 @@ def response_plot(result: Result, path: str | Path) -> Path:
         f, h = f[keep], h[keep]
     ff = np.linspace(f[0], f[-1], 2000) if f.size else np.array([fit.f0_hz])
     sign = -1.0 if fit.polarity_inverted else 1.0
-    model = inside_outside(ff, fit.f0_hz, fit.q, fit.gain, fit.delay_s, sign)
+    model = result.model(ff)
     unwrap = np.exp(2j * np.pi * f * fit.delay_s) * sign  # show phase without the delay
     unwrap_m = np.exp(2j * np.pi * ff * fit.delay_s) * sign
 
@@ -85,7 +85,7 @@ def response_plot(result: Result, path: str | Path) -> Path:
     ax_m.plot(f, 20 * np.log10(np.abs(h)), ".", ms=2.5, color=PALETTE["ink"], label="measured")
     ax_m.plot(ff, 20 * np.log10(np.abs(model)), color=PALETTE["fit"], lw=1.6,
               label=f"fit: f0 {fit.f0_hz:.2f} Hz, Q {fit.q:.1f}")
-    if result.prediction is not None:
+    if result.prediction is not None and result.modes_fit is None:
         pred = inside_outside(ff, result.prediction.f0_hz, fit.q, fit.gain, fit.delay_s, sign)
         ax_m.plot(ff, 20 * np.log10(np.abs(pred)), "--", color=PALETTE["prediction"], lw=1.3,
                   label=f"geometry: f0 {result.prediction.f0_hz:.2f} Hz (fitted Q, gain)")
@@ -104,7 +104,7 @@ def response_plot(result: Result, path: str | Path) -> Path:
     fb, hb = f[in_band], h[in_band]
     if fb.size:
         idx = np.searchsorted(tf.freqs_hz, fb)
-        mb = inside_outside(fb, fit.f0_hz, fit.q, fit.gain, fit.delay_s, sign)
+        mb = result.model(fb)
         sig = tf.sigma(np.abs(mb), idx) / np.sqrt(2)
         with np.errstate(divide="ignore", invalid="ignore"):
             r = (hb - mb) / sig
@@ -116,5 +116,32 @@ def response_plot(result: Result, path: str | Path) -> Path:
     ax_r.set_xlabel("frequency (Hz)")
     if f.size and f[-1] / max(f[0], 1e-9) > 10:
         ax_r.set_xscale("log")
+    fig.tight_layout()
+    return _save(fig, path)
+
+
+def decay_plot(result: Result, path: str | Path) -> Path:
+    """Free decays: the recorded signal of each decay with the fitted envelope."""
+    x = result.signal
+    fs = result.input.sample_rate_hz
+    decays = result.decays
+    n = max(1, len(decays))
+    fig, axes = _figure(n, [1.0] * n, (7.2, 1.0 + 1.8 * n))
+    for ax, d in zip(np.atleast_1d(axes), decays):
+        i0 = int(d["start_s"] * fs)
+        i1 = i0 + int(d["length_s"] * fs)
+        t = np.arange(i1 - i0) / fs
+        seg = x[i0:i1] if x is not None else np.zeros(t.size)
+        tau = d["q"] / (np.pi * d["f0_hz"])
+        env = d["amplitude"] * np.exp(-t / tau)
+        ax.plot(1000 * t, seg, color=PALETTE["ink"], lw=0.6, label="recorded")
+        ax.plot(1000 * t, env, color=PALETTE["fit"], lw=1.4,
+                label=f"fit: f0 {d['f0_hz']:.2f} Hz, Q {d['q']:.1f}")
+        ax.plot(1000 * t, -env, color=PALETTE["fit"], lw=1.4)
+        ax.set_ylabel("pressure (full scale)")
+        ax.legend(fontsize=7, frameon=False, loc="upper right")
+        ax.set_title(f"decay at {d['start_s']:.3f} s", fontsize=9, loc="left",
+                     color=PALETTE["ink"])
+    np.atleast_1d(axes)[-1].set_xlabel("time after the start of the fitted stretch (ms)")
     fig.tight_layout()
     return _save(fig, path)

@@ -10,15 +10,35 @@ def summary(doc: dict[str, Any]) -> str:
     fit = doc["fit"]
     air = doc["air"]
     inp = doc["input"]
+    where = [inp["method"]]
+    if inp.get("inside_channel") is not None:
+        where.append(f"inside channel {inp['inside_channel']}")
+    if inp.get("outside_channel") is not None:
+        where.append(f"outside channel {inp['outside_channel']}")
+    if inp.get("sample_rate_hz") is not None:
+        where.append(f"{inp['sample_rate_hz']:g} Hz")
     lines = [
-        f"{inp['recording']}: {inp['method']}, channels inside={inp['inside_channel']} "
-        f"outside={inp['outside_channel']}, {inp['sample_rate_hz']:g} Hz",
+        f"{inp['recording']}: " + ", ".join(where),
         f"  f0   = {fit['f0_hz']:.3f} ± {fit['f0_stderr_hz']:.3f} Hz",
         f"  Q    = {fit['q']:.2f} ± {fit['q_stderr']:.2f}",
-        f"  gain = {fit['gain']:.4f} (inside/outside), delay = "
-        f"{1e6 * fit['delay_s']:.1f} ± {1e6 * fit['delay_stderr_s']:.1f} µs",
-        f"  fit band {fit['band_hz'][0]:.1f} to {fit['band_hz'][1]:.1f} Hz, "
-        f"{fit['n_points']} points, reduced chi-square {fit['reduced_chi2']:.2f}",
+    ]
+    if fit.get("method") == "damped-sinusoid":
+        decays = fit.get("decays", [])
+        lines.append(f"  from {len(decays)} free decay(s) (damped-sinusoid fit, matrix-pencil "
+                     "start values)")
+    else:
+        lines += [
+            f"  gain = {fit['gain']:.4f}, delay = {1e6 * fit['delay_s']:.1f} ± "
+            f"{1e6 * (fit['delay_stderr_s'] or 0.0):.1f} µs",
+            f"  fit band {fit['band_hz'][0]:.1f} to {fit['band_hz'][1]:.1f} Hz, "
+            f"{fit['n_points']} points, reduced chi-square {fit['reduced_chi2']:.2f}"
+            + ("" if fit.get("weighting") != "residuals" else " (errors from the residuals)"),
+        ]
+        if len(fit.get("modes") or []) > 1:
+            lines += [f"  mode {k + 1}: f0 = {m['f0_hz']:.3f} ± {m['f0_stderr_hz']:.3f} Hz, "
+                      f"Q = {m['q']:.2f} ± {m['q_stderr']:.2f}"
+                      for k, m in enumerate(fit["modes"])]
+    lines += [
         f"  air  {air['temperature_c']:.1f} °C, RH {100 * air['relative_humidity']:.0f} %, "
         f"{air['pressure_pa'] / 1000:.2f} kPa: c = {air['speed_of_sound_m_s']:.2f} m/s",
     ]
