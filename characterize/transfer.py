@@ -131,6 +131,10 @@ def _fast_below(n: int) -> int:
 PEAK_SEARCH_MIN_COHERENCE = 0.5
 
 
+#: A resonance peak must stand this factor (3 dB) above the median |H| of the band.
+PEAK_MIN_PROMINENCE = 10 ** (3 / 20)
+
+
 def peak_search_values(tf: TransferFunction) -> NDArray[np.complex128]:
     """H with the bins unfit for a peak search (low coherence) set to NaN."""
     if tf.coherence is None:
@@ -155,6 +159,10 @@ def estimate_peak(freqs_hz: NDArray[np.float64], h: NDArray[np.complex128],
         mag = np.convolve(mag, np.ones(k) / k, mode="same")
     i = int(np.argmax(mag))
     peak = mag[i]
+    if not peak > PEAK_MIN_PROMINENCE * float(np.median(mag)):
+        raise FitError(f"no resonance: |H| has no peak standing "
+                       f"{20 * math.log10(PEAK_MIN_PROMINENCE):.0f} dB above its median "
+                       f"between {f[sel[0]]:.1f} and {f[sel[-1]]:.1f} Hz")
     if i == 0 or i == mag.size - 1:
         raise FitError("no resonance peak inside the excited band (the largest |H| is at a "
                        f"band edge, {f[sel[i]]:.1f} Hz)")
@@ -518,7 +526,8 @@ def cross_spectral_transfer(inside: NDArray[np.float64], outside: NDArray[np.flo
         n_seg = max(1, (n - m) // (m // 2) + 1)
         n_d = max(1.5, n_seg / 1.056)  # Hann, 50 % overlap (Welch 1967 variance ratio)
         with np.errstate(divide="ignore", invalid="ignore"):
-            rel2 = (1 - coh) / (np.maximum(coh, 1e-12) * (n_d - 1))
+            # coherence 1 (identical channels) would give zero noise: keep a floor
+            rel2 = np.maximum(1 - coh, 1e-12) / (np.maximum(coh, 1e-12) * (n_d - 1))
         rel2 = np.where(np.isfinite(rel2), rel2, 1e6)
         level = np.max(gxx) if gxx.size else 1.0
         excited = f[gxx > 1e-6 * level] if np.any(gxx > 0) else f

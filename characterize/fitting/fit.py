@@ -133,9 +133,38 @@ def model_at(p: NDArray[np.float64], f: NDArray[np.float64], sign: float,
     off, wts = kernel
     grid = f[:, None] + off[None, :]
     m = inside_outside(grid, p[0], p[1], p[2], p[3], sign)
+    return smooth(m, wts, form)
+
+
+def smooth(m: NDArray[np.complex128], wts: NDArray[np.float64], form: str
+           ) -> NDArray[np.complex128]:
+    """Apply kernel weights (one row shared, or one row per point) to a model
+    evaluated on the kernel's offsets (points x offsets)."""
+    if wts.ndim == 1:
+        if form == "h2":
+            return (np.abs(m) ** 2 @ wts) / (np.conj(m) @ wts)
+        return m @ wts
     if form == "h2":
-        return (np.abs(m) ** 2 @ wts) / (np.conj(m) @ wts)
-    return m @ wts
+        return np.sum(np.abs(m) ** 2 * wts, axis=1) / np.sum(np.conj(m) * wts, axis=1)
+    return np.sum(m * wts, axis=1)
+
+
+def local_kernel(tf: TransferFunction, f: NDArray[np.float64]) -> Kernel:
+    """The estimator's kernel at points ``f``, weighted by the excitation's own
+    spectrum across it: E[G_xy](f) = sum_j H(f + o_j) S_xx(f + o_j) K_j, so a
+    slope of S_xx across the kernel (room reflections) does not shift f0. S_xx
+    is the measured reference spectrum, interpolated (Bendat & Piersol 2010,
+    §8.5, for the convolution form)."""
+    if tf.kernel is None:
+        return None
+    off, wts = tf.kernel
+    ref = 10 ** (np.asarray(tf.reference_db) / 10)
+    if not np.all(np.isfinite(ref)) or ref.size != tf.freqs_hz.size:
+        return tf.kernel
+    s = np.interp(f[:, None] + off[None, :], tf.freqs_hz, ref)
+    w2 = wts[None, :] * s
+    w2 /= np.sum(w2, axis=1, keepdims=True)
+    return off, w2
 
 
 def residual_at(p: NDArray[np.float64], f: NDArray[np.float64], h: NDArray[np.complex128],
@@ -231,11 +260,13 @@ def fit_transfer(tf: TransferFunction, band_hz: tuple[float, float] | None = Non
         params.add("gain", value=g0, min=0.0)
         params.add("delay", value=tau0, min=-MAX_DELAY_S, max=MAX_DELAY_S)
 
+        kern = local_kernel(tf, f)
+
         def residual(p: lmfit.Parameters, f: NDArray[np.float64] = f,
-                     h: NDArray[np.complex128] = h, sig: NDArray[np.float64] = sig
-                     ) -> NDArray[np.float64]:
+                     h: NDArray[np.complex128] = h, sig: NDArray[np.float64] = sig,
+                     kern: Kernel = kern) -> NDArray[np.float64]:
             v = np.array([p["f0"].value, p["q"].value, p["gain"].value, p["delay"].value])
-            return residual_at(v, f, h, sig, sign, tf.kernel, tf.kernel_form)
+            return residual_at(v, f, h, sig, sign, kern, tf.kernel_form)
 
         mini = lmfit.Minimizer(residual, params, scale_covar=False, nan_policy="raise")
         result = mini.minimize(method="least_squares", x_scale="jac", ftol=1e-12, xtol=1e-12, gtol=1e-12)
@@ -251,8 +282,8 @@ def fit_transfer(tf: TransferFunction, band_hz: tuple[float, float] | None = Non
     pv = result.params
     names = ["f0", "q", "gain", "delay"]
     p_hat = np.array([pv[k].value for k in names])
-    cov = covariance(lambda p: residual_at(p, f, h, sig, sign, tf.kernel, tf.kernel_form), p_hat)
-    chi2 = float(np.sum(residual_at(p_hat, f, h, sig, sign, tf.kernel, tf.kernel_form) ** 2))
+    cov = covariance(lambda p: residual_at(p, f, h, sig, sign, kern, tf.kernel_form), p_hat)
+    chi2 = float(np.sum(residual_at(p_hat, f, h, sig, sign, kern, tf.kernel_form) ** 2))
     dof = max(1, 2 * f.size - len(names))
     redchi = chi2 / dof
     # Honest errors: with a noise estimate, the covariance is scaled up (never

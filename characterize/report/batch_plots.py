@@ -6,8 +6,9 @@ Same look as :mod:`characterize.report.plots` (its ``_figure``, ``_save`` and
 told apart by fill and hatching as well as by colour, so the plots survive
 black-and-white printing.
 
-Each ``*_figure`` function returns a matplotlib figure (the PDF report pages
-it); :func:`write_batch_plots` saves them as PNG for the HTML report.
+Each ``draw_*`` function draws into one Axes (the PDF report puts it on a
+page); ``*_figure`` makes it a figure of its own, and :func:`write_batch_plots`
+saves those as PNG for the HTML report.
 """
 
 from __future__ import annotations
@@ -69,7 +70,7 @@ def _histogram(ax: Any, ok: list[float], bad: list[float], lo: float | None, hi:
         ax.axvspan(lo if lo is not None else x_lo, hi if hi is not None else x_hi,
                    color=PALETTE["band"], alpha=0.7, lw=0, label=band_label)
     ax.hist([ok, bad], bins=edges, stacked=True, color=[PALETTE["ink"], PALETTE["fit"]],
-            edgecolor=PALETTE["paper"], linewidth=0.6, hatch=None,
+            edgecolor=PALETTE["paper"], linewidth=0.6,
             label=[f"pass ({len(ok)})", f"fail ({len(bad)})"])
     for patch in ax.containers[-1].patches if ax.containers else []:
         patch.set_hatch("////")
@@ -82,11 +83,10 @@ def _histogram(ax: Any, ok: list[float], bad: list[float], lo: float | None, hi:
     ax.legend(fontsize=7, frameon=False, loc="upper right")
 
 
-def f0_histogram_figure(summary: BatchSummary) -> Any:
+def draw_f0_histogram(ax: Any, summary: BatchSummary) -> None:
     """Histogram of f0 (Hz): passed items solid, failed hatched, the
     tolerance band shaded and the target dashed."""
     spec = summary.spec
-    fig, ax = _figure(1, [1], _SIZE)
     ok, bad = _values(summary, "f0_hz")
     if ok or bad:
         _histogram(ax, ok, bad, spec.f0_lower_hz, spec.f0_upper_hz, spec.f0_target_hz,
@@ -96,14 +96,11 @@ def f0_histogram_figure(summary: BatchSummary) -> Any:
     ax.set_xlabel("f0 (Hz)")
     ax.set_title(f"f0 of {len(ok) + len(bad)} items", fontsize=10, color=PALETTE["ink"],
                  loc="left")
-    fig.tight_layout()
-    return fig
 
 
-def q_histogram_figure(summary: BatchSummary) -> Any:
+def draw_q_histogram(ax: Any, summary: BatchSummary) -> None:
     """Histogram of Q (dimensionless) with the allowed range shaded."""
     spec = summary.spec
-    fig, ax = _figure(1, [1], _SIZE)
     ok, bad = _values(summary, "q")
     if spec.q_min is None and spec.q_max is None:
         label = "no Q limits"
@@ -120,17 +117,14 @@ def q_histogram_figure(summary: BatchSummary) -> Any:
     ax.set_xlabel("Q (dimensionless)")
     ax.set_title(f"Q of {len(ok) + len(bad)} items", fontsize=10, color=PALETTE["ink"],
                  loc="left")
-    fig.tight_layout()
-    return fig
 
 
-def control_chart_figure(summary: BatchSummary) -> Any:
+def draw_control_chart(ax: Any, summary: BatchSummary) -> None:
     """Individuals control chart of f0 (Hz) in manifest order: centre line and
     3-sigma control limits (sigma from the mean moving range), the tolerance
     band shaded; failed items as crosses, points beyond the control limits
     ringed, items without a result marked along the bottom."""
     spec, st = summary.spec, summary.stats
-    fig, ax = _figure(1, [1], (7.2, 3.8))
     ax.axhspan(spec.f0_lower_hz, spec.f0_upper_hz, color=PALETTE["band"], alpha=0.7, lw=0,
                label=f"tolerance ±{spec.f0_tolerance_hz:.2f} Hz")
     pts = [(it.index, float(it.f0_hz), it.status) for it in summary.items
@@ -172,8 +166,33 @@ def control_chart_figure(summary: BatchSummary) -> Any:
     ax.set_title("f0 control chart (individuals)", fontsize=10, color=PALETTE["ink"],
                  loc="left")
     ax.legend(fontsize=7, frameon=False, loc="upper left", bbox_to_anchor=(1.0, 1.0))
+
+
+#: name -> drawing function (into one matplotlib Axes).
+DRAW = {"f0_histogram": draw_f0_histogram, "q_histogram": draw_q_histogram,
+        "control_chart": draw_control_chart}
+
+
+def batch_figure(name: str, summary: BatchSummary, size: tuple[float, float] = _SIZE) -> Any:
+    """One batch plot as its own figure (``name`` one of :data:`DRAW`)."""
+    if name not in DRAW:
+        raise ValueError(f"name must be one of {sorted(DRAW)}, got {name!r}")
+    fig, ax = _figure(1, [1], size)
+    DRAW[name](ax, summary)
     fig.tight_layout()
     return fig
+
+
+def f0_histogram_figure(summary: BatchSummary) -> Any:
+    return batch_figure("f0_histogram", summary)
+
+
+def q_histogram_figure(summary: BatchSummary) -> Any:
+    return batch_figure("q_histogram", summary)
+
+
+def control_chart_figure(summary: BatchSummary) -> Any:
+    return batch_figure("control_chart", summary, (7.2, 3.8))
 
 
 FIGURES = {"f0_histogram": f0_histogram_figure, "q_histogram": q_histogram_figure,

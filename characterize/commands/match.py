@@ -1,0 +1,62 @@
+"""``characterize match``: matched sets from many fitted results."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import click
+
+from ._errors import handles_errors
+
+
+def _describe(s: Any, target: float) -> str:
+    return (f"{', '.join(s.ids)}\n      f0 {s.f0_mean_hz:.3f} Hz mean ({s.offset_hz:+.3f} Hz from "
+            f"target), spread {s.f0_range_hz:.3f} Hz (sd {s.f0_std_hz:.3f}), worst "
+            f"{s.max_deviation_hz:.3f} Hz = {100 * s.max_deviation_hz / target:.3f} % off; "
+            f"Q {s.q_mean:.2f} (range {s.q_range:.2f}, sd {s.q_std:.2f}); cost {s.cost:.4g}")
+
+
+def _text(m: Any) -> str:
+    lines = [f"{m.count} of {len(m.items)} results nearest {m.target_f0_hz:.3f} Hz by "
+             f"{m.by} (f0 brought to c = {m.reference_speed_of_sound_m_s:.2f} m/s, "
+             f"{m.reference_temperature_c:.1f} °C)",
+             f"  best:   {_describe(m.best, m.target_f0_hz)}"]
+    for i, alt in enumerate(m.alternatives, 1):
+        lines.append(f"  alt {i}:  {_describe(alt, m.target_f0_hz)}")
+    if m.flags:
+        lines.append("  flags:")
+        lines += [f"    [{f.severity}] {f.code}: {f.message}" for f in m.flags]
+    return "\n".join(lines)
+
+
+@click.command("match")
+@click.argument("results", metavar="RESULTS...", nargs=-1, required=True,
+                type=click.Path(path_type=Path))
+@click.option("--count", "-k", "count", type=int, required=True,
+              help="How many items the set needs (K).")
+@click.option("--target", "target_hz", type=float, required=True, help="Target f0 (Hz).")
+@click.option("--by", type=click.Choice(["f0", "f0,q"]), default="f0", show_default=True,
+              help="Match on f0 alone, or on f0 and Q.")
+@click.option("--alternatives", type=click.IntRange(0, 20), default=3, show_default=True,
+              help="How many next-best sets to show.")
+@click.option("--json", "as_json", is_flag=True, help="Print the match as JSON.")
+@handles_errors
+def match(results: tuple[Path, ...], count: int, target_hz: float, by: str, alternatives: int,
+          as_json: bool) -> None:
+    """Pick the K fitted RESULTS (result.json files, or folders holding one) whose
+    f0 (and Q, with --by f0,q) lie closest together and nearest the target.
+
+    With --by f0 the set is the K items nearest the target; with --by f0,q the
+    worst f0 deviation (in half-power half-bandwidths) and the Q spread are
+    weighed together. The chosen set's spread and the next-best sets are shown.
+    """
+    from ..report.document import to_json
+    from ..tuning import load_result, match_sets
+
+    docs = [load_result(p) for p in results]
+    m = match_sets(docs, count, target_hz, by, alternatives=alternatives)
+    if as_json:
+        click.echo(to_json(m.to_dict()), nl=False)
+    else:
+        click.echo(_text(m))
