@@ -13,10 +13,33 @@ from typing import Any
 import click
 
 from . import __version__
+from .commands._errors import handles_errors
 from .errors import InputError
 
 
-from .commands._errors import handles_errors  # noqa: E402  (one error policy for all commands)
+class OneLineErrors(click.Group):
+    """A click group whose usage errors are one line (exit status 2), like the
+    library's input errors, instead of click's three-line usage block."""
+
+    def main(self, *args: Any, **kwargs: Any) -> Any:  # type: ignore[override]
+        kwargs["standalone_mode"] = False
+        try:
+            rv = super().main(*args, **kwargs)
+        except click.exceptions.NoArgsIsHelpError as exc:
+            click.echo(exc.format_message())
+            sys.exit(0)
+        except click.exceptions.UsageError as exc:
+            cmd = f" {exc.ctx.info_name}" if exc.ctx is not None and exc.ctx.parent else ""
+            click.echo(f"characterize: error: {exc.format_message()} "
+                       f"(see characterize{cmd} --help)", err=True)
+            sys.exit(2)
+        except click.exceptions.Abort:
+            click.echo("characterize: aborted", err=True)
+            sys.exit(1)
+        except click.exceptions.ClickException as exc:
+            click.echo(f"characterize: error: {exc.format_message()}", err=True)
+            sys.exit(exc.exit_code)
+        sys.exit(rv if isinstance(rv, int) else 0)
 
 
 class Fraction(click.ParamType):
@@ -36,10 +59,10 @@ class Fraction(click.ParamType):
 
 
 class Quantity(click.ParamType):
-    """A number with a unit ("101.325 kPa"), or a bare number in the SI unit."""
+    """A number with a unit ("101.325 kPa"), or a bare number in SI units."""
 
-    def __init__(self, dimension: str, si: str) -> None:
-        self.dimension, self.si = dimension, si
+    def __init__(self, dimension: str) -> None:
+        self.dimension = dimension
         self.name = dimension.upper()
 
     def convert(self, value: Any, param: Any, ctx: Any) -> float:
@@ -57,7 +80,7 @@ class Quantity(click.ParamType):
             self.fail(exc.expected, param, ctx)
 
 
-@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+@click.group(cls=OneLineErrors, context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(__version__, prog_name="characterize")
 def main() -> None:
     """Measure acoustic resonators: sweep, record, fit f0 and Q, compare with geometry."""
@@ -138,7 +161,7 @@ def sweep(out: Path, force: bool, **kw: Any) -> None:
               help="Air temperature (°C); overrides the object file.")
 @click.option("--humidity", "relative_humidity", type=Fraction(), default=None,
               help="Relative humidity, 0..1 or '45 %'; overrides the object file.")
-@click.option("--pressure", "pressure_pa", type=Quantity("pressure", "Pa"), default=None,
+@click.option("--pressure", "pressure_pa", type=Quantity("pressure"), default=None,
               help="Static pressure ('101.3 kPa' or Pa); overrides the object file.")
 @click.option("--tolerance", type=float, default=None,
               help="f0 mismatch that raises a warning, as a fraction [default: 0.05].")
