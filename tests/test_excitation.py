@@ -60,7 +60,8 @@ class TestSweepLaw:
         phase = np.unwrap(np.angle(signal.hilbert(x)))
         inst = np.diff(phase) * p.rate_hz / (2 * np.pi)
         t = (np.arange(inst.size) + 0.5) / p.rate_hz
-        law = p.start_hz * np.exp(t * math.log(p.stop_hz / p.start_hz) / p.duration_s)  # Farina 2000
+        # Farina 2000: f(t) = f1 exp(t R / T), R = ln(f2/f1)
+        law = p.start_hz * np.exp(t * math.log(p.stop_hz / p.start_hz) / p.duration_s)
         a, b = int(0.05 * n), int(0.95 * n)
         rel = inst[a:b] / law[a:b] - 1
         assert np.max(np.abs(rel)) < 0.005  # brief: 0.5 % over the middle 90 %
