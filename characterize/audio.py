@@ -21,6 +21,14 @@ CLIP_MARGIN_DB = 0.1
 CLIP_MIN_RUN = 3
 #: A channel whose peak is below this (full scale = 1) is silent.
 SILENCE_PEAK = 1e-6
+#: Longest recording accepted (s). A measurement needs seconds to minutes; a
+#: longer file is refused before it is read (one line, exit 2) rather than
+#: filling the memory.
+MAX_DURATION_S = 3600.0
+#: Most samples (frames x channels) accepted: 2**27, 512 MiB as float32. A
+#: 10-minute 96 kHz two-channel recording (115.2 M samples) fits; see
+#: benchmarks/bench_memory.py for the peak memory the main job needs per sample.
+MAX_SAMPLES = 2**27
 
 
 @dataclass(frozen=True, slots=True)
@@ -79,12 +87,21 @@ def read_audio(path: str | Path, *, min_channels: int = 1) -> Recording:
         raise InputError(str(p), None, "file not found")
     if p.is_dir():
         raise InputError(str(p), None, "is a directory, expected an audio file")
+    if not p.is_file():
+        raise InputError(str(p), None, "is not a regular file, expected an audio file")
     try:
+        if p.stat().st_size == 0:
+            raise InputError(str(p), None, "is empty (0 bytes), expected an audio file")
         info = sf.info(str(p))
+        check_size(str(p), int(info.frames), int(info.channels), float(info.samplerate))
         data, rate = sf.read(str(p), dtype="float32", always_2d=True)
+    except InputError:
+        raise
     except (sf.LibsndfileError, RuntimeError, TypeError, ValueError) as exc:
-        msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        msg = " ".join(str(exc).split()) or type(exc).__name__
         raise InputError(str(p), None, f"not a readable audio file ({msg})") from None
+    except MemoryError:
+        raise InputError(str(p), None, "too large to read into memory") from None
     except OSError as exc:
         raise InputError(str(p), None, f"cannot read: {exc.strerror or exc}") from None
     if data.shape[0] == 0:
@@ -98,6 +115,28 @@ def read_audio(path: str | Path, *, min_channels: int = 1) -> Recording:
         bad = int(np.count_nonzero(~np.isfinite(data)))
         raise InputError(str(p), "samples", f"holds {bad} NaN or infinite samples")
     return Recording(str(p), float(rate), data, info.subtype, info.format)
+
+
+def _hms(seconds: float) -> str:
+    h, rem = divmod(int(round(seconds)), 3600)
+    m, s = divmod(rem, 60)
+    return f"{h} h {m:02d} min {s:02d} s" if h else f"{m} min {s:02d} s"
+
+
+def check_size(source: str, frames: int, channels: int, rate_hz: float) -> None:
+    """Refuse, before reading, a recording longer than :data:`MAX_DURATION_S`
+    or holding more than :data:`MAX_SAMPLES` samples (one-line :class:`InputError`)."""
+    if rate_hz > 0 and frames / rate_hz > MAX_DURATION_S:
+        raise InputError(source, None,
+                         f"is {_hms(frames / rate_hz)} long; the longest recording accepted is "
+                         f"{_hms(MAX_DURATION_S)} (audio.MAX_DURATION_S): cut it to the "
+                         "measurement")
+    if frames * channels > MAX_SAMPLES:
+        raise InputError(source, None,
+                         f"holds {frames:,} frames x {channels} channels, more than the "
+                         f"{MAX_SAMPLES:,} samples accepted (audio.MAX_SAMPLES, "
+                         f"{MAX_SAMPLES * 4 / 2**20:.0f} MiB as float32): cut it to the "
+                         "measurement or keep only the channels used")
 
 
 def check_channel(rec: Recording, number: int, option: str) -> int:

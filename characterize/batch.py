@@ -431,7 +431,7 @@ def read_manifest(path: str | os.PathLike[str], spec: Spec) -> Manifest:
                 raise InputError(source, f"row {row}", f"{len(cells)} cells but the header has "
                                  f"{len(header)} columns (a stray delimiter or an unquoted "
                                  "comma in a note?)")
-            rec = dict(zip(header, (c.strip() for c in cells)))
+            rec = dict(zip(header, (c.strip() for c in cells), strict=False))  # short rows: empty
             items.append(_item(rec, row, len(items) + 1, source, base, spec, seen, stems))
     except csv.Error as exc:
         raise InputError(source, f"row {reader.line_num}", f"not valid CSV ({exc})") from None
@@ -648,7 +648,7 @@ def individuals_limits(values: Sequence[float]) -> tuple[float, float, float, fl
     """
     if len(values) < 2:
         return None
-    mr = sum(abs(b - a) for a, b in zip(values[:-1], values[1:])) / (len(values) - 1)
+    mr = sum(abs(b - a) for a, b in zip(values[:-1], values[1:], strict=True)) / (len(values) - 1)
     sigma = mr / D2_MOVING_RANGE
     c = sum(values) / len(values)
     return c, c - 3 * sigma, c + 3 * sigma, sigma
@@ -772,7 +772,7 @@ def batch_stats(outcomes: Sequence[ItemOutcome], spec: Spec) -> BatchStats:
         z = modified_z_scores(vals)
         if z is None:
             continue
-        for o, v, zi in zip(group, vals, z):
+        for o, v, zi in zip(group, vals, z, strict=True):
             if abs(zi) > OUTLIER_MODIFIED_Z:
                 outliers.append(Outlier(o.id, o.index, name, v, zi))
     outliers.sort(key=lambda o: (o.index, o.quantity))
@@ -913,24 +913,50 @@ def default_workers() -> int:
 
 
 def _mp_context() -> Any:
-    """Worker start method: a fork server where there is one (safe with
-    threads, modules imported once), else spawn."""
+    """Worker start method: the platform's default (fork on Linux up to Python
+    3.13, a fork server from 3.14, spawn on macOS and Windows; a program may
+    choose another with ``multiprocessing.set_start_method``). With a fork
+    server the heavy modules are imported once, in the server.
+
+    With spawn or a fork server, a script that calls :func:`run_batch` must
+    guard its top level with ``if __name__ == "__main__":``.
+    """
     import multiprocessing as mp
 
-    if "forkserver" in mp.get_all_start_methods():
-        ctx = mp.get_context("forkserver")
+    ctx = mp.get_context()
+    if ctx.get_start_method() == "forkserver":
         ctx.set_forkserver_preload(["characterize.pipeline", "characterize.report.plots",
                                     "characterize.report.document"])
-        return ctx
-    return mp.get_context("spawn")
+    return ctx
 
 
 def _init_worker() -> None:
-    """Worker start-up: the plotting backend without a display, imported once."""
+    """Worker start-up: the modules an item needs, and matplotlib's backend and
+    fonts, loaded once (in the parent before forking, so workers start warm)."""
+    import io as _io
+
     import matplotlib
 
     matplotlib.use("Agg")
-    import matplotlib.pyplot  # noqa: F401  (imported once per worker, not per item)
+    import matplotlib.pyplot as plt
+
+    from . import pipeline  # noqa: F401
+    from .report import document, plots  # noqa: F401
+
+    fig = plt.figure(figsize=(1, 1))
+    fig.text(0.5, 0.5, "f0 (Hz)")
+    fig.savefig(_io.BytesIO(), format="png")
+    plt.close(fig)
+
+
+def _worker_start(warm_up: bool) -> None:
+    """Worker process start: leave Ctrl-C to the parent (which stops handing out
+    items and lets the running ones finish), and warm up unless forked warm."""
+    import signal
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    if warm_up:
+        _init_worker()
 
 
 def check_outputs(manifest: Manifest, out_dir: str | os.PathLike[str], *, resume: bool,
@@ -1012,8 +1038,12 @@ def run_batch(manifest: Manifest, spec: Spec, out_dir: str | os.PathLike[str], *
     n_workers = 0
     if todo:
         n_workers = max(1, min(workers or default_workers(), len(todo)))
-        pool = ProcessPoolExecutor(n_workers, mp_context=_mp_context(),
-                                   initializer=_init_worker)
+        ctx = _mp_context()
+        forked = ctx.get_start_method() == "fork"
+        if forked:
+            _init_worker()  # once here; the forked workers inherit it
+        pool = ProcessPoolExecutor(n_workers, mp_context=ctx, initializer=_worker_start,
+                                   initargs=(not forked,))
         try:
             futures = {pool.submit(_work, t): t for t in todo}
             for fut in as_completed(futures):
@@ -1067,7 +1097,7 @@ def _with_outlier(o: ItemOutcome, which: tuple[str, ...]) -> ItemOutcome:
 
 
 def _now() -> str:
-    return _dt.datetime.now(_dt.timezone.utc).astimezone().isoformat(timespec="seconds")
+    return _dt.datetime.now(_dt.timezone.utc).astimezone().isoformat(sep=" ", timespec="seconds")
 
 
 # ------------------------------------------------------------------ reports

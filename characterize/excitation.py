@@ -161,6 +161,15 @@ def read_sidecar(path: str | Path) -> SweepParams:
     return params
 
 
+#: The active part of a sweep read off its samples starts where the envelope
+#: first exceeds this fraction of its peak (fades are half-Hann, so this is
+#: within 2 % of a fade's length from its start).
+ESTIMATE_EDGE_FRACTION = 1e-3
+#: Largest rms deviation of ln(instantaneous frequency) from a straight line for
+#: the samples to count as an exponential sweep.
+ESTIMATE_MAX_LOG_RESIDUAL = 0.05
+
+
 def estimate_params(samples: NDArray[np.floating], rate_hz: float,
                     source: str = "sweep") -> SweepParams:
     """Read an exponential sweep's band and timing off its samples alone.
@@ -179,28 +188,36 @@ def estimate_params(samples: NDArray[np.floating], rate_hz: float,
         raise InputError(source, None, "the sweep file is silent")
     k = max(1, int(rate_hz * 0.002))
     smooth = np.convolve(env, np.ones(k) / k, mode="same")
+    # the law is fitted where the envelope is above 10 % of its peak (clear of the
+    # fades); the sweep's ends are where the samples first and last leave silence
+    # (fades included), and the law extrapolated there gives the start and stop
     active = np.flatnonzero(smooth > 0.1 * peak)
     i0, i1 = int(active[0]), int(active[-1]) + 1
     if i1 - i0 < 0.05 * rate_hz:
         raise InputError(source, None, "no sweep found (active part shorter than 50 ms)")
+    loud = np.flatnonzero(np.abs(x) > ESTIMATE_EDGE_FRACTION * float(np.max(np.abs(x))))
+    e0, e1 = int(loud[0]), int(loud[-1]) + 1
     phase = np.unwrap(np.angle(hilbert(x[i0:i1])))
     inst = np.diff(phase) * rate_hz / (2 * np.pi)
-    t = (np.arange(inst.size) + 0.5) / rate_hz
+    t = (i0 + np.arange(inst.size) + 0.5) / rate_hz
     a, b = int(0.1 * inst.size), int(0.9 * inst.size)
     ok = inst[a:b] > 0
     if np.count_nonzero(ok) < 10:
         raise InputError(source, None, "cannot read a rising frequency: not a sine sweep")
-    slope, icpt = np.polyfit(t[a:b][ok], np.log(inst[a:b][ok]), 1)
-    duration = (i1 - i0) / rate_hz
-    f1 = float(np.exp(icpt))
-    f2 = float(np.exp(icpt + slope * duration))
-    if not (slope > 0 and 0 < f1 < f2):
-        raise InputError(source, None, "the frequency does not rise exponentially: not a sweep")
+    tt, lf = t[a:b][ok], np.log(inst[a:b][ok])
+    slope, icpt = np.polyfit(tt, lf, 1)
+    resid = float(np.sqrt(np.mean((lf - (icpt + slope * tt)) ** 2)))
+    duration = (e1 - e0) / rate_hz
+    f1 = float(np.exp(icpt + slope * e0 / rate_hz))
+    f2 = float(np.exp(icpt + slope * e1 / rate_hz))
+    if not (slope > 0 and 0 < f1 and f2 > 1.5 * f1) or resid > ESTIMATE_MAX_LOG_RESIDUAL:
+        raise InputError(source, None, "the frequency does not rise exponentially "
+                         f"(rms deviation {resid:.2f} in ln f): not an exponential sweep")
     f2 = min(f2, rate_hz / 2)
     level = 20 * np.log10(float(np.max(np.abs(x[i0:i1]))))
     return SweepParams(start_hz=f1, stop_hz=f2, duration_s=duration, rate_hz=rate_hz,
                        level_dbfs=float(min(level, 0.0)), fade_in_s=0.0, fade_out_s=0.0,
-                       tail_s=(x.size - i1) / rate_hz)
+                       tail_s=(x.size - e1) / rate_hz)
 
 
 def load_sweep(path: str | Path, rate_hz: float | None = None) -> Sweep:
@@ -232,7 +249,7 @@ def load_sweep(path: str | Path, rate_hz: float | None = None) -> Sweep:
 #: sweep's ends (half an octave), where the sweep still has its full level, so that
 #: sweep x inverse equals the band limit exactly and the responses stay causal.
 BAND_EDGE_FACTOR = math.sqrt(2.0)
-BAND_ORDER = 8
+BAND_ORDER = 16
 #: Spectral division floor, relative to the sweep's peak power.
 INVERSE_FLOOR = 1e-10
 
@@ -291,5 +308,16 @@ def inverse_spectrum(sweep: Sweep, n_fft: int) -> NDArray[np.complex128]:
     lo, hi = usable_band(p)
     limit = band_filter(f, lo, min(hi, 0.45 * p.rate_hz))
     power = np.abs(x) ** 2
-    floor = INVERSE_FLOOR * float(np.max(power))
-    return limit * np.conj(x) / np.maximum(power, floor)
+    peak = float(np.max(power))
+    # Outside the sweep there is nothing to invert: a regularisation that is zero
+    # inside [start, stop] and rises smoothly (raised cosine over half an octave)
+    # to the sweep's peak power outside keeps the gain there bounded. The band
+    # limit is already 48 dB down at the sweep's ends, so what this changes is
+    # small and smooth, and the responses stay causal to well below the noise.
+    with np.errstate(divide="ignore"):
+        lf = np.log2(np.maximum(f, 1e-12))
+    above = np.clip((lf - math.log2(p.stop_hz)) / 0.5, 0.0, 1.0)
+    below = np.clip((math.log2(p.start_hz) - lf) / 0.5, 0.0, 1.0)
+    ramp = 0.5 * (1 - np.cos(np.pi * np.maximum(above, below)))
+    eps = peak * ramp**2
+    return limit * np.conj(x) / np.maximum(power + eps, INVERSE_FLOOR * peak)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+import stat
 import tempfile
 from collections.abc import Callable
 from pathlib import Path
@@ -26,31 +27,67 @@ def check_writable(path: str | os.PathLike[str], *, force: bool, what: str = "ou
     return p
 
 
+def _new_file_mode(target: Path) -> int:
+    """Mode for the file that replaces ``target``: the old file's permission bits
+    when there is one, else what ``open()`` would give (0o666 less the umask).
+    ``tempfile.mkstemp`` creates files readable by the owner only."""
+    try:
+        return stat.S_IMODE(target.stat().st_mode)
+    except OSError:
+        umask = os.umask(0)
+        os.umask(umask)
+        return 0o666 & ~umask
+
+
+def _fsync_dir(parent: Path) -> None:
+    """Make the rename durable (best effort: not every platform opens directories)."""
+    try:
+        fd = os.open(parent, os.O_RDONLY)
+    except OSError:
+        return
+    try:
+        os.fsync(fd)
+    except OSError:
+        pass
+    finally:
+        os.close(fd)
+
+
 def atomic_write(path: str | os.PathLike[str], writer: Callable[[str], None]) -> Path:
     """Write a file atomically: ``writer(tmp_path)`` fills a temporary file in
     the same directory, which is then renamed over ``path``.
 
-    A killed process leaves either the old file or the new one, never half.
+    A killed process leaves either the old file or the new one, never half
+    (a killed writer may leave its hidden ``.NAME.*.part`` temporary behind).
+    The new file keeps the old one's permission bits (or gets the usual
+    0o666 less the umask). Operating-system failures (a directory in the way,
+    no permission, a full disk) raise :class:`InputError` naming the path.
     """
     p = Path(path)
     parent = p.parent if str(p.parent) else Path(".")
+    if p.is_dir():
+        raise InputError(str(p), None, "output path is a directory, expected a file name")
     try:
         parent.mkdir(parents=True, exist_ok=True)
         fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".part" + p.suffix, dir=parent)
     except OSError as exc:
-        raise InputError(str(p), None, f"cannot write here: {exc.strerror}") from None
+        raise InputError(str(p), None, f"cannot write here: {exc.strerror or exc}") from None
     os.close(fd)
     try:
         writer(tmp)
         with open(tmp, "rb+") as fh:
             os.fsync(fh.fileno())
+        os.chmod(tmp, _new_file_mode(p))
         os.replace(tmp, p)
-    except BaseException:
+    except BaseException as exc:
         try:
             os.unlink(tmp)
         except OSError:
             pass
+        if isinstance(exc, OSError):
+            raise InputError(str(p), None, f"cannot write: {exc.strerror or exc}") from None
         raise
+    _fsync_dir(parent)
     return p
 
 

@@ -40,6 +40,9 @@ HARMONIC_ORDERS_THD = 5
 #: Segments averaged in the cross-spectral path should be at least this long,
 #: in units of 1/(bandwidth) = Q/f0 (Bendat & Piersol resolution bias rule).
 SEGMENT_BANDWIDTHS = 8.0
+#: Shortest Welch segment (s) when the recording allows: the reference spectrum
+#: must be resolved finely enough (room ripple) for the kernel model to hold.
+MIN_SEGMENT_S = 0.1
 #: Minimum number of Welch averages for the coherence-based error to hold.
 MIN_AVERAGES = 8
 
@@ -136,10 +139,15 @@ PEAK_MIN_PROMINENCE = 10 ** (3 / 20)
 
 
 def peak_search_values(tf: TransferFunction) -> NDArray[np.complex128]:
-    """H with the bins unfit for a peak search (low coherence) set to NaN."""
-    if tf.coherence is None:
-        return tf.h
-    return np.where(tf.coherence >= PEAK_SEARCH_MIN_COHERENCE, tf.h, np.nan)
+    """H with the bins unfit for a peak search set to NaN: low coherence, or a
+    noise estimate larger than half of |H| (room notches in the reference)."""
+    h = tf.h
+    if tf.coherence is not None:
+        h = np.where(tf.coherence >= PEAK_SEARCH_MIN_COHERENCE, h, np.nan)
+    with np.errstate(invalid="ignore"):
+        sig = tf.sigma()
+        noisy = np.isfinite(sig) & (sig > 0.5 * np.abs(tf.h))
+    return np.where(noisy, np.nan, h)
 
 
 def estimate_peak(freqs_hz: NDArray[np.float64], h: NDArray[np.complex128],
@@ -328,6 +336,37 @@ def first_reflection(ir: NDArray[np.float64], onset: int, rate_hz: float, lo_hz:
     return int(gap + later[0] - z)
 
 
+#: Bins where the outside level is this many dB below its median in the band are
+#: left out of the peak search (room notches make |H| spike there).
+NOTCH_DEPTH_DB = 20.0
+
+
+def _mask_notches(f: NDArray[np.float64], h: NDArray[np.complex128],
+                  out: NDArray[np.complex128], band: tuple[float, float]
+                  ) -> NDArray[np.complex128]:
+    sel = (f >= band[0]) & (f <= band[1])
+    p = np.abs(out) ** 2
+    if not np.any(sel):
+        return h
+    ref = float(np.median(p[sel]))
+    return np.where(p >= ref * 10 ** (-NOTCH_DEPTH_DB / 10), h, np.nan)
+
+
+def decay_end(seg: NDArray[np.float64], rate_hz: float, noise_from: int, noise_to: int) -> int:
+    """Sample at which an impulse response has decayed into its noise: the last
+    5 ms block before ``noise_from`` whose rms exceeds three times the median
+    block rms between ``noise_from`` and ``noise_to`` (the noise floor there)."""
+    b = max(8, int(0.005 * rate_hz))
+    nb = min(seg.size, noise_to) // b
+    k0 = noise_from // b
+    if nb - k0 < 4 or k0 < 1:
+        return 0
+    rms = np.sqrt(np.mean(seg[: nb * b].reshape(nb, b) ** 2, axis=1))
+    floor = float(np.median(rms[k0:nb]))
+    above = np.flatnonzero(rms[:k0] > 3 * floor)
+    return int((above[-1] + 1) * b) if above.size else 0
+
+
 def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64] | None,
                    rate_hz: float, sweep: Sweep, *, window_s: float | None = None
                    ) -> TransferFunction:
@@ -367,7 +406,7 @@ def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64] | N
     adv_max = int(p.harmonic_advance_s(HARMONIC_ORDERS_EXCLUDED) * rate_hz)
     l_max = n_fft - adv_max - 2 * pre
     # the response cannot be longer than the recording after the onset
-    l_max = min(l_max, n - onset + pre + int(0.5 * sweep.samples.size))
+    l_max = min(l_max, n - (onset - pre))
     if l_max < int(MIN_WINDOW_S * rate_hz):
         raise FitError("the sweep is too short or fast: its harmonic images leave less than "
                        f"{MIN_WINDOW_S * 1000:.0f} ms for the response")
@@ -392,7 +431,7 @@ def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64] | N
         f, fi, fo, _ = spectra(_fast_below(l_max))
         with np.errstate(divide="ignore", invalid="ignore"):
             h0 = fi / fo
-        f0_est, q_est = estimate_peak(f, h0, band)
+        f0_est, q_est = estimate_peak(f, _mask_notches(f, h0, fo, band), band)
         tau = q_est / (math.pi * f0_est)
         length = int(min(l_max, max(WINDOW_TIME_CONSTANTS * tau, MIN_WINDOW_S) * rate_hz))
         length = min(_fast_len(length), _fast_below(l_max))
@@ -413,7 +452,7 @@ def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64] | N
         h = fi / fo
     if window_s is not None or f0_est is None:
         try:
-            f0_est, q_est = estimate_peak(f, h, band)
+            f0_est, q_est = estimate_peak(f, _mask_notches(f, h, fo, band), band)
             tau = q_est / (math.pi * f0_est)
         except FitError:
             tau = math.nan
@@ -426,12 +465,18 @@ def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64] | N
     until = (n - t_f * rate_hz - start).astype(np.float64)  # in window samples
     # noise-only stretch: after the ringing (25, else 15, else 10 time constants),
     # where the recording still holds noise at the resonance
+    # and after the room's own decay in both responses
     m_seg = 2 * min(8192, max(256, (l_max - pre) // 16))
     n0 = int(0.75 * l_max)
     if math.isfinite(tau) and f0_est is not None:
         until_f0 = float(np.interp(f0_est, f, until))
+        # the room's own decay, judged against the noise in the second half of
+        # the stretch that still holds noise at the resonance
+        end = int(min(until_f0, l_max))
+        room = max(decay_end(seg_in, rate_hz, end // 2, end),
+                   0 if one_mic else decay_end(seg_out, rate_hz, end // 2, end))
         for k in (25.0, 15.0, 10.0):
-            cand = pre + int(k * tau * rate_hz)
+            cand = max(pre + int(k * tau * rate_hz), room + int(0.01 * rate_hz))
             if min(until_f0, l_max) - cand >= m_seg:
                 n0 = cand
                 break
@@ -545,7 +590,7 @@ def cross_spectral_transfer(inside: NDArray[np.float64], outside: NDArray[np.flo
     m0 = 2 ** int(np.clip(round(math.log2(max(n / 16, 256))), 8, 20))
     first = estimate(m0)
     f0, q = estimate_peak(first.freqs_hz, peak_search_values(first), first.excited_band_hz)
-    want = SEGMENT_BANDWIDTHS * q / f0 * rate_hz
+    want = max(SEGMENT_BANDWIDTHS * q / f0, MIN_SEGMENT_S) * rate_hz
     limit = 2 * n // (MIN_AVERAGES + 1)
     m = int(2 ** math.ceil(math.log2(max(want, 256))))
     while m > limit and m > 256:

@@ -50,11 +50,11 @@ from .physics.air import AirState, air_state
 from .physics.geometry import AirOverrides, Cavity, Neck, ResonatorObject, load_object
 from .physics.helmholtz import (
     PLAUSIBLE_END_CORRECTION_OVER_RADIUS,
-    compliance_m3_pa,
     derive_from_f0,
     helmholtz_f0_hz,
     predict,
 )
+from .physics.nonlinear import REFERENCE_PRESSURE_PA, drive_state
 from .units import parse_quantity, parse_temperature_c
 
 __all__ = [
@@ -70,6 +70,7 @@ __all__ = [
     "REFERENCE_PRESSURE_PA",
     "MIN_POINTS",
     "ResultSummary",
+    "textbook_end_correction_m",
     "load_result",
     "result_from_dict",
     "LineFit",
@@ -80,6 +81,7 @@ __all__ = [
     "DiameterRoute",
     "TrimAdvice",
     "advise_trim",
+    "check_points",
     "SeriesPoint",
     "SeriesFit",
     "fit_series",
@@ -135,18 +137,11 @@ SQUARE_LAW_EXPONENT = 2.0
 SQUARE_LAW_SIGMAS = 2.0
 #: Standard acceleration of gravity, m/s^2 (3rd CGPM, 1901).
 STANDARD_GRAVITY_M_S2 = 9.80665
-#: Reference pressure of SPL, Pa (rms).
-REFERENCE_PRESSURE_PA = 20e-6
 #: Fewest points a series, a level study or a power-law fit accepts.
 MIN_POINTS = 3
 
 def _finite(x: float) -> bool:
     return isinstance(x, (int, float)) and math.isfinite(x)
-
-
-def _f(x: Any) -> float:
-    """Plain float (NaN for None)."""
-    return math.nan if x is None else float(x)
 
 
 def _flags_dicts(flags: Iterable[Flag]) -> list[dict[str, str]]:
@@ -180,7 +175,9 @@ class ResultSummary:
         The measured end correction L_eff - L of this object, m (NaN without
         geometry).
     textbook_end_correction_m : float
-        The end correction the geometry predicts, m (NaN without geometry).
+        The end correction the geometry predicts (the document's
+        ``prediction.end_correction_m``), m; NaN when not known yet
+        (:func:`advise_trim` then asks :func:`textbook_end_correction_m`).
     drive_spl_db : float or None
         Cavity SPL from a calibrated drive block (``drive.cavity_spl_db``).
     drive_displacement_over_diameter : float or None
@@ -205,13 +202,22 @@ class ResultSummary:
     warnings: tuple[str, ...] = ()
 
     def with_object(self, obj: ResonatorObject) -> ResultSummary:
-        """The same measurement described by another geometry (end corrections re-derived)."""
+        """The same measurement described by another geometry (end corrections re-derived).
+
+        Raises
+        ------
+        InputError
+            The geometry is not a Helmholtz resonator (a tube follows another law).
+        """
+        if obj.kind != "helmholtz":
+            raise InputError(obj.source_path, "kind", f"tuning works on Helmholtz resonators, "
+                             f"not on a {obj.kind!r}")
         derived = derive_from_f0(self.f0_hz, _nan_to_zero(self.f0_stderr_hz), obj, self.air)
         stderr = derived.end_correction_stderr_m if _finite(self.f0_stderr_hz) else math.nan
         return replace(self, object=obj, name=obj.name,
                        end_correction_m=derived.end_correction_m,
                        end_correction_stderr_m=stderr,
-                       textbook_end_correction_m=predict(obj, self.air).end_correction_m)
+                       textbook_end_correction_m=math.nan)
 
     def with_temperature(self, temperature_c: float) -> ResultSummary:
         """The same measurement with the air recomputed at another temperature."""
@@ -285,33 +291,46 @@ def _air_from_doc(doc: Mapping[str, Any], source: str) -> AirState:
                    density_kg_m3=rho if math.isfinite(rho) and rho > 0 else state.density_kg_m3)
 
 
+def textbook_end_correction_m(obj: ResonatorObject, air: AirState) -> float:
+    """The end correction the geometry predicts, L_eff - L, m: that of
+    :func:`~characterize.physics.helmholtz.predict` (the same lumped-equivalent
+    meaning as the measured one, so the two compare directly)."""
+    return predict(obj, air).end_correction_m
+
+
+def _build(cls: type, data: Mapping[str, Any], renames: Mapping[str, str] | None = None,
+           **extra: Any) -> Any:
+    """A geometry dataclass from its ``to_dict()`` output: the keys that are fields."""
+    names = {f.name for f in fields(cls)}
+    kw = {k: v for k, v in data.items() if k in names}
+    for src, dst in (renames or {}).items():
+        if src in data and dst in names:
+            kw[dst] = data[src]
+    kw.update(extra)
+    return cls(**kw)
+
+
 def _object_from_doc(doc: Mapping[str, Any], source: str) -> ResonatorObject | None:
+    """The geometry block of a result document back to a :class:`ResonatorObject`."""
     o = doc.get("object")
     if o is None:
         return None
-    if not isinstance(o, Mapping):
+    where = source + ": object"
+    if not isinstance(o, Mapping) or not isinstance(o.get("cavity"), Mapping) \
+            or not isinstance(o.get("neck"), Mapping):
         raise InputError(source, "object", "expected a table with cavity and neck")
-    volume = _number(o, "cavity.volume_m3", source + ": object", positive=True)
-    diameter = _number(o, "neck.diameter_m", source + ": object", positive=True)
-    length = _number(o, "neck.length_m", source + ": object", positive=True)
-    neck = o.get("neck", {})
-    ends = []
-    for key in ("outer_end", "inner_end"):
-        v = neck.get(key)
-        if not isinstance(v, str):
-            raise InputError(source, f"object.neck.{key}", "expected an end condition string")
-        ends.append(v)
+    _number(o, "cavity.volume_m3", where, positive=True)
+    _number(o, "neck.diameter_m", where, positive=True)
+    _number(o, "neck.length_m", where, positive=True)
+    cav, neck = o["cavity"], o["neck"]
     air = o.get("air") if isinstance(o.get("air"), Mapping) else {}
     try:
-        return ResonatorObject(
-            name=str(o.get("name") or Path(source).stem),
-            cavity=Cavity(volume_m3=volume),
-            neck=Neck(diameter_m=diameter, length_m=length, outer_end=ends[0], inner_end=ends[1]),
-            air=AirOverrides(temperature_c=air.get("temperature_c"),
-                             relative_humidity=air.get("relative_humidity"),
-                             pressure_pa=air.get("pressure_pa")),
-            source_path=str(o.get("source_path") or source),
-        )
+        sections = tuple((float(d), float(ln)) for d, ln in cav.get("sections_m") or ())
+        cavity = _build(Cavity, cav, **({"sections": sections} if sections else {}))
+        return _build(ResonatorObject, o, cavity=cavity, neck=_build(Neck, neck),
+                      air=_build(AirOverrides, air),
+                      name=str(o.get("name") or Path(source).stem),
+                      source_path=str(o.get("source_path") or source))
     except (TypeError, ValueError) as exc:
         raise InputError(source, "object", f"cannot be read: {exc}") from None
 
@@ -365,10 +384,16 @@ def result_from_dict(doc: Any, source: str) -> ResultSummary:
                             drive_displacement_over_diameter=xd, warnings=warnings)
     if obj is None:
         return summary
+    if obj.kind != "helmholtz":
+        raise InputError(source, "object.kind", f"tuning works on Helmholtz resonators; this "
+                         f"result is for a {obj.kind!r}")
     try:
-        return summary.with_object(obj)
+        summary = summary.with_object(obj)
     except ValueError as exc:
         raise InputError(source, "object", str(exc)) from None
+    textbook = _number(doc, "prediction.end_correction_m", source, required=False)
+    return replace(summary, textbook_end_correction_m=textbook) if math.isfinite(textbook) \
+        else summary
 
 
 def load_result(path: str | Path) -> ResultSummary:
@@ -746,7 +771,7 @@ class TrimAdvice:
         d["volume"] = self.volume.to_dict()
         d["diameter"] = self.diameter.to_dict()
         d["flags"] = _flags_dicts(self.flags)
-        return {"kind": "characterize.trim/1", **d}
+        return {"schema": "characterize.trim/1", **d}
 
 
 def _central_stderr(fn: Callable[[float], float], x: float, sigma: float) -> float:
@@ -760,20 +785,27 @@ def _central_stderr(fn: Callable[[float], float], x: float, sigma: float) -> flo
 
 
 def _bore_for(target_hz: float, c: float, volume_m3: float, length_m: float,
-              delta_over_radius: float, radius_m: float) -> float:
-    """Neck radius a' with helmholtz_f0_hz(c, pi a'^2, V, L + k a') = target, k measured."""
+              delta_over_radius: float, radius_m: float, count: int) -> float:
+    """Radius a' of each of ``count`` round openings with
+    helmholtz_f0_hz(c, count pi a'^2, V, L + k a') = target (k as measured)."""
     from scipy.optimize import brentq
 
     def g(a: float) -> float:
-        return helmholtz_f0_hz(c, math.pi * a * a, volume_m3, length_m + delta_over_radius * a) \
-            - target_hz
+        return helmholtz_f0_hz(c, count * math.pi * a * a, volume_m3,
+                               length_m + delta_over_radius * a) - target_hz
 
     lo, hi = radius_m * 1e-3, radius_m
-    while g(hi) < 0:
-        hi *= 2.0
-        if hi > 1e3 * radius_m:
-            return math.nan
-    return float(brentq(g, lo, hi, xtol=1e-15 * radius_m, rtol=1e-14, maxiter=200))
+    try:
+        if g(lo) > 0:
+            return math.nan  # the target is below what a pinhole gives
+        while g(hi) < 0:
+            hi *= 2.0
+            if hi > 1e3 * radius_m:
+                return math.nan
+        return float(brentq(g, lo, hi, xtol=1e-15 * radius_m, rtol=1e-14, maxiter=200))
+    except ValueError:
+        # L + k a' <= 0 somewhere: a negative measured end correction (wrong geometry)
+        return math.nan
 
 
 def advise_trim(result: ResultSummary, target_hz: float) -> TrimAdvice:
@@ -838,6 +870,9 @@ def advise_trim(result: ResultSummary, target_hz: float) -> TrimAdvice:
     length, radius, area = neck.length_m, neck.radius_m, neck.area_m2
     delta = result.end_correction_m
     k = delta / radius
+    textbook = result.textbook_end_correction_m
+    if not math.isfinite(textbook):
+        textbook = textbook_end_correction_m(obj, air)
 
     def leff(f: float) -> float:
         return derive_from_f0(f, 0.0, obj, air).effective_neck_length_m
@@ -848,7 +883,7 @@ def advise_trim(result: ResultSummary, target_hz: float) -> TrimAdvice:
     # new_length = L_eff(f_t) - (L_eff(f0) - L): only L_eff(f0) carries the error
     se_len = _central_stderr(leff, f0, sf)
     cut = length - new_length
-    textbook_cut = (length + result.textbook_end_correction_m) * (1.0 - (f0 / target_hz) ** 2)
+    textbook_cut = (length + textbook) * (1.0 - (f0 / target_hz) ** 2)
     max_f0 = helmholtz_f0_hz(c, area, volume, delta) if delta > 0 else math.inf
     neck_possible = cut >= 0 and new_length > 0
     neck_route = NeckRoute(new_length_m=new_length, new_length_stderr_m=se_len, cut_m=cut,
@@ -867,9 +902,10 @@ def advise_trim(result: ResultSummary, target_hz: float) -> TrimAdvice:
     def bore(f: float) -> float:
         # the end correction over the radius measured at f, kept for the new bore
         k_f = (leff(f) - length) / radius
-        return 2.0 * _bore_for(target_hz, c, volume, length, k_f, radius)
+        return 2.0 * _bore_for(target_hz, c, volume, length, k_f, radius, neck.count)
 
-    d_new = bore(f0)
+    round_bore = neck.shape in ("round", "hole")
+    d_new = bore(f0) if round_bore else math.nan
     se_d = _central_stderr(bore, f0, sf) if math.isfinite(d_new) else math.nan
     dia_route = DiameterRoute(new_diameter_m=d_new, new_diameter_stderr_m=se_d,
                               change_m=d_new - neck.diameter_m,
@@ -877,13 +913,20 @@ def advise_trim(result: ResultSummary, target_hz: float) -> TrimAdvice:
 
     flags: list[Flag] = []
     mm = 1e3
+    lo_k, hi_k = PLAUSIBLE_END_CORRECTION_OVER_RADIUS
+    if not lo_k <= k <= hi_k:
+        flags.append(Flag("end-correction-implausible", "warning",
+                          f"the measured end correction is {k:.2f} neck radii (plausible "
+                          f"{lo_k:g} to {hi_k:g}): the advice rests on it; check the neck "
+                          "length, diameter and volume in the object file"))
     if cut < 0:
         flags.append(Flag("trim-one-way", "warning",
                           f"the target {target_hz:.2f} Hz is below the measured "
                           f"{f0:.2f} Hz and needs a longer neck ({-cut * mm:.2f} mm more, "
                           "e.g. a collar): trimming only shortens; or add "
-                          f"{vol_route.change_m3 * 1e6:.1f} mL of volume, or sleeve the bore "
-                          f"to {d_new * mm:.2f} mm"))
+                          f"{vol_route.change_m3 * 1e6:.1f} mL of volume"
+                          + (f", or sleeve the bore to {d_new * mm:.2f} mm"
+                             if math.isfinite(d_new) else "")))
     elif new_length <= 0:
         flags.append(Flag("trim-impossible", "error",
                           f"the target {target_hz:.2f} Hz is above {max_f0:.2f} Hz, what "
@@ -901,6 +944,13 @@ def advise_trim(result: ResultSummary, target_hz: float) -> TrimAdvice:
                           f"{100 * vol_route.fraction:.0f} % (over "
                           f"{100 * MAX_VOLUME_CHANGE_FRACTION:.0f} %): the lumped model "
                           "cannot promise this; change in steps and measure again"))
+    if not round_bore:
+        flags.append(Flag("no-bore-route", "info",
+                          f"the neck is a {neck.shape}: the bore route is given for round "
+                          "openings only"))
+    elif not math.isfinite(d_new):
+        flags.append(Flag("no-bore-route", "info",
+                          "no bore reaches the target with the measured end correction"))
     if math.isfinite(d_new):
         if d_new < neck.diameter_m:
             flags.append(Flag("drill-one-way", "info",
@@ -926,7 +976,7 @@ def advise_trim(result: ResultSummary, target_hz: float) -> TrimAdvice:
         f0_stderr_hz=sf, speed_of_sound_m_s=c, temperature_c=air.temperature_c,
         length_m=length, diameter_m=neck.diameter_m, volume_m3=volume, end_correction_m=delta,
         end_correction_stderr_m=result.end_correction_stderr_m, end_correction_over_radius=k,
-        textbook_end_correction_m=result.textbook_end_correction_m, neck=neck_route,
+        textbook_end_correction_m=textbook, neck=neck_route,
         volume=vol_route, diameter=dia_route, flags=tuple(flags))
 
 
@@ -1046,10 +1096,17 @@ class SeriesFit:
         d["line"] = self.line.to_dict()
         d["flags"] = _flags_dicts(self.flags)
         d["failures"] = [dict(x) for x in self.failures]
-        return {"kind": "characterize.series/1", **d}
+        return {"schema": "characterize.series/1", **d}
 
 
-def _check_points(values: Sequence[float], ids: Sequence[str], source: str, what: str) -> None:
+def check_points(values: Sequence[float], ids: Sequence[str], source: str, what: str) -> None:
+    """At least :data:`MIN_POINTS` points, with distinct values of the varied quantity.
+
+    Raises
+    ------
+    InputError
+        Too few points, or two points with the same value (both named).
+    """
     if len(values) < MIN_POINTS:
         raise InputError(source, None, f"a {what} needs at least {MIN_POINTS} points, got "
                          f"{len(values)}")
@@ -1130,7 +1187,7 @@ def fit_series(points: Sequence[SeriesPoint], vary: str, obj: ResonatorObject | 
     if vary not in VARY:
         raise InputError("--vary", None, f"must be one of {', '.join(VARY)}, got {vary!r}")
     what = "trim series" if vary == "neck-length" else "fill series"
-    _check_points([p.value for p in points], [p.id for p in points], source, what)
+    check_points([p.value for p in points], [p.id for p in points], source, what)
     pts = tuple(points)
     c = np.array([p.speed_of_sound_m_s for p in pts])
     c_ref = float(np.mean(c))
@@ -1151,9 +1208,12 @@ def fit_series(points: Sequence[SeriesPoint], vary: str, obj: ResonatorObject | 
     area = obj.neck.area_m2 if obj is not None else math.nan
     textbook = math.nan
     if obj is not None:
+        if obj.kind != "helmholtz":
+            raise InputError(obj.source_path, "kind", f"series methods are for Helmholtz "
+                             f"resonators, not for a {obj.kind!r}")
         air_ref = replace(air_state(temperature_c=float(np.mean(temps))),
                           speed_of_sound_m_s=c_ref)
-        textbook = predict(obj, air_ref).end_correction_m
+        textbook = textbook_end_correction_m(obj, air_ref)
     if vary == "neck-length":
         if b <= 0:
             raise FitError(f"{source}: 1/f0^2 does not grow with the neck length (slope "
@@ -1527,7 +1587,7 @@ class MatchedSet:
     ids : tuple of str
         Members, in order of f0.
     cost : float
-        The ranking criterion (smaller is better; see :func:`match_sets`).
+        The ranking criterion (smaller is better; see :func:`match_cost`).
     max_deviation_hz : float
         Largest |f0 - target| among the members, Hz.
     f0_mean_hz, f0_std_hz, f0_range_hz : float
@@ -1572,7 +1632,7 @@ class MatchResult:
 
     def to_dict(self) -> dict[str, Any]:
         return {
-            "kind": "characterize.match/1", "target_f0_hz": self.target_f0_hz,
+            "schema": "characterize.match/1", "target_f0_hz": self.target_f0_hz,
             "count": self.count, "by": self.by,
             "reference_speed_of_sound_m_s": self.reference_speed_of_sound_m_s,
             "reference_temperature_c": self.reference_temperature_c,
@@ -1599,23 +1659,35 @@ def match_cost(f0_hz: Sequence[float], q: Sequence[float], target_hz: float, by:
                q_scale: float) -> float:
     r"""The ranking criterion of a candidate set (smaller is better).
 
-    - ``by="f0"``: the largest relative deviation from the target,
-      :math:`r = \max_i |f_i - f_t|/f_t` (every member lies within
-      :math:`\pm r f_t`).
+    - ``by="f0"``: the spread of the members' f0 plus the offset of the set's
+      centre (midrange) from the target, relative to the target:
+
+      .. math::
+
+          r = \frac{(f_\max - f_\min) + |(f_\max + f_\min)/2 - f_t|}{f_t}
+
+      (how far apart the members are and how far off the set is count alike).
     - ``by="f0,q"``: :math:`\sqrt{(2\tilde Q r)^2 + (\Delta Q/\tilde Q)^2}`,
       where :math:`\tilde Q` is the median Q of all candidates and
-      :math:`\Delta Q` the set's Q range. :math:`2\tilde Q r` is the worst
-      f0 deviation in half-power half-bandwidths :math:`f_0/(2Q)`;
-      :math:`\Delta Q/Q` the relative Q spread. Both are first-order relative
-      changes of the response 1/(1 - (f/f0)^2 + j f/(Q f0)) at resonance, so
-      they are added in quadrature (own derivation).
+      :math:`\Delta Q` the set's Q range. :math:`2\tilde Q r` expresses the f0
+      figure in half-power half-bandwidths :math:`f_0/(2Q)`, :math:`\Delta Q/Q`
+      is the relative Q spread; both are first-order relative changes of the
+      response 1/(1 - (f/f0)^2 + j f/(Q f0)) at resonance, so they are added
+      in quadrature (own derivation).
     """
     f = np.asarray(f0_hz, dtype=float)
-    r = float(np.max(np.abs(f - target_hz))) / target_hz
+    lo, hi = float(np.min(f)), float(np.max(f))
+    r = ((hi - lo) + abs(0.5 * (lo + hi) - target_hz)) / target_hz
     if by == "f0":
         return r
     qa = np.asarray(q, dtype=float)
     return math.hypot(2.0 * q_scale * r, float(np.ptp(qa)) / q_scale)
+
+
+def _label(r: ResultSummary) -> str:
+    """A short id for a result: its folder for DIR/result.json, else its file stem."""
+    p = Path(r.source)
+    return p.parent.name if p.name == "result.json" and p.parent.name else p.stem
 
 
 def match_sets(results: Sequence[ResultSummary], count: int, target_hz: float, by: str = "f0",
@@ -1624,15 +1696,16 @@ def match_sets(results: Sequence[ResultSummary], count: int, target_hz: float, b
 
     Every f0 is first brought to the mean speed of sound of all results
     (f0 c_ref / c_i), so items measured at different temperatures compare
-    as they would side by side. Sets are ranked by :func:`match_cost`; the
-    search is exact:
+    as they would side by side. Sets are ranked by :func:`match_cost`. The
+    best set is found exactly, because shrinking the f0 interval a set spans
+    never raises the f0 part of the cost (the spread falls by as much as the
+    centre can move away from the target, times two):
 
-    - ``by="f0"``: the best set is the ``count`` items nearest the target;
-      candidates are all runs of ``count`` consecutive items in f0 order.
-    - ``by="f0,q"``: for each m >= count, the m items nearest the target in
-      f0, and among them the ``count`` consecutive in Q with the smallest Q
-      range. The optimum is among these, because the cost grows with both
-      the worst f0 deviation and the Q range.
+    - ``by="f0"``: the best set is a run of ``count`` consecutive items in f0
+      order; all runs are ranked and the next best are the alternatives.
+    - ``by="f0,q"``: for every f0 interval (pruned once its f0 part alone
+      exceeds the costs already found), the ``count`` items in it that are
+      consecutive in Q with the smallest Q range.
 
     Parameters
     ----------
@@ -1651,6 +1724,8 @@ def match_sets(results: Sequence[ResultSummary], count: int, target_hz: float, b
     InputError
         K outside 2..len(results), target not > 0, unknown ``by``.
     """
+    import bisect
+
     if by not in ("f0", "f0,q"):
         raise InputError("--by", None, f"must be one of 'f0', 'f0,q', got {by!r}")
     if not _finite(target_hz) or target_hz <= 0:
@@ -1665,10 +1740,8 @@ def match_sets(results: Sequence[ResultSummary], count: int, target_hz: float, b
     c_ref = float(c.mean())
     ids: list[str] = []
     for r in results:
-        rid = r.name
-        if rid in ids:
-            rid = r.source
-        ids.append(rid)
+        rid = _label(r)
+        ids.append(r.source if rid in ids else rid)
     items = tuple(
         MatchItem(id=i, source=r.source, f0_hz=r.f0_hz * c_ref / r.air.speed_of_sound_m_s,
                   f0_stderr_hz=r.f0_stderr_hz * c_ref / r.air.speed_of_sound_m_s, q=r.q,
@@ -1678,29 +1751,41 @@ def match_sets(results: Sequence[ResultSummary], count: int, target_hz: float, b
     f = np.array([it.f0_hz for it in items])
     q = np.array([it.q for it in items])
     q_scale = float(np.median(q))
+    order = np.argsort(f, kind="stable")
+    fs = f[order]
+    keep = alternatives + 1
     cands: dict[frozenset[int], float] = {}
-    if by == "f0":
-        order = np.argsort(f, kind="stable")
-        for s in range(n - count + 1):
-            idx = order[s:s + count]
-            cands[frozenset(int(i) for i in idx)] = match_cost(f[idx], q[idx], target_hz, by,
-                                                               q_scale)
-    else:
-        near = np.argsort(np.abs(f - target_hz), kind="stable")
-        for m in range(count, n + 1):
-            elig = near[:m]
-            by_q = elig[np.argsort(q[elig], kind="stable")]
+    top: list[float] = []  # the `keep` smallest costs found so far
+
+    def add(idx: np.ndarray) -> None:
+        key = frozenset(int(i) for i in idx)
+        if key in cands:
+            return
+        cost = match_cost(f[idx], q[idx], target_hz, by, q_scale)
+        cands[key] = cost
+        bisect.insort(top, cost)
+        del top[keep:]
+
+    def threshold() -> float:
+        return top[-1] if len(top) >= keep else math.inf
+
+    for i in range(n - count + 1):
+        for j in range(i + count - 1, n):
+            cf = ((fs[j] - fs[i]) + abs(0.5 * (fs[i] + fs[j]) - target_hz)) / target_hz
+            bound = cf if by == "f0" else 2.0 * q_scale * cf
+            if bound > threshold():
+                break
+            if by == "f0":
+                add(order[i:i + count])
+                break
+            inner = order[i:j + 1]
+            by_q = inner[np.argsort(q[inner], kind="stable")]
             qs = q[by_q]
-            ranges = qs[count - 1:] - qs[:m - count + 1]
-            # the best Q window and, for alternatives, the next few
-            for s in np.argsort(ranges, kind="stable")[:alternatives + 1]:
-                idx = by_q[s:s + count]
-                key = frozenset(int(i) for i in idx)
-                if key not in cands:
-                    cands[key] = match_cost(f[idx], q[idx], target_hz, by, q_scale)
-    ranked = sorted(cands.items(), key=lambda kv: (kv[1], float(np.ptp(f[list(kv[0])])),
-                                                   sorted(kv[0])))
-    sets = [_set_of(sorted(k), items, target_hz, v) for k, v in ranked[:alternatives + 1]]
+            ranges = qs[count - 1:] - qs[:qs.size - count + 1]
+            for s0 in np.argsort(ranges, kind="stable")[:keep]:
+                add(by_q[s0:s0 + count])
+    ranked = sorted(cands.items(), key=lambda kv: (kv[1], sorted(kv[0])))
+    sets = [_set_of(sorted(k), items, target_hz, v) for k, v in ranked[:keep]]
     best = sets[0]
     flags: list[Flag] = []
     member_se = [it.f0_stderr_hz for it in items if it.id in best.ids]
@@ -1755,11 +1840,15 @@ def spl_to_pressure_pa(spl_db: Any) -> Any:
 
 
 def pressure_to_spl_db(p_rms_pa: Any) -> Any:
-    """Sound pressure level (dB re 20 uPa) from an RMS pressure (Pa); see :func:`spl_to_pressure_pa`."""
+    """Sound pressure level (dB re 20 uPa) from an RMS pressure (Pa).
+
+    The inverse of :func:`spl_to_pressure_pa`.
+    """
     return 20.0 * np.log10(np.asarray(p_rms_pa, dtype=float) / REFERENCE_PRESSURE_PA)
 
 
-def neck_displacement_over_diameter(spl_db: float, obj: ResonatorObject, air: AirState) -> float:
+def neck_displacement_over_diameter(spl_db: float, f0_hz: float, obj: ResonatorObject,
+                                    air: AirState) -> float:
     r"""Neck particle displacement amplitude over the neck diameter at a cavity SPL.
 
     The volume flow into the cavity is :math:`U = j\omega C p_c`, so the
@@ -1767,16 +1856,18 @@ def neck_displacement_over_diameter(spl_db: float, obj: ResonatorObject, air: Ai
 
     .. math::
 
-        \xi = \frac{C\,\hat p_c}{S} = \frac{V \hat p_c}{\rho c^2 S},
+        \xi = \frac{V \hat p_c}{\rho c^2 S},
         \qquad \hat p_c = \sqrt2\,p_\text{rms}
 
-    with the compliance C from
-    :func:`~characterize.physics.helmholtz.compliance_m3_pa`.
+    evaluated by :func:`~characterize.physics.nonlinear.drive_state` (d is the
+    diameter, or a slot's smaller side).
 
     Parameters
     ----------
     spl_db : float
         Cavity SPL, dB re 20 uPa (rms).
+    f0_hz : float
+        Resonance frequency, Hz (> 0; the displacement does not depend on it).
     obj : ResonatorObject
         Geometry (V, S, d).
     air : AirState
@@ -1794,9 +1885,8 @@ def neck_displacement_over_diameter(spl_db: float, obj: ResonatorObject, air: Ai
     A. R. Frey, A. B. Coppens, J. V. Sanders, *Fundamentals of Acoustics*,
     4th ed. (2000), section 10.8 (section from memory).
     """
-    c_ac = compliance_m3_pa(obj.cavity.volume_m3, air.density_kg_m3, air.speed_of_sound_m_s)
     p_amp = math.sqrt(2.0) * float(spl_to_pressure_pa(spl_db))
-    return c_ac * p_amp / obj.neck.area_m2 / obj.neck.diameter_m
+    return drive_state(p_amp, f0_hz, obj, air).displacement_over_diameter
 
 
 @dataclass(frozen=True)
@@ -1890,7 +1980,7 @@ class LevelStudy:
         d["line"] = self.line.to_dict()
         d["flags"] = _flags_dicts(self.flags)
         d["failures"] = [dict(x) for x in self.failures]
-        return {"kind": "characterize.levels/1", **d}
+        return {"schema": "characterize.levels/1", **d}
 
 
 def level_study(points: Sequence[LevelPoint], *, source: str = "levels",
@@ -1951,7 +2041,7 @@ def level_study(points: Sequence[LevelPoint], *, source: str = "levels",
     if not 0 < q_drop_fraction < 1:
         raise ValueError(f"q_drop_fraction must be in (0, 1), got {q_drop_fraction!r}")
     pts = tuple(sorted(points, key=lambda p: p.spl_db))
-    _check_points([p.spl_db for p in pts], [p.id for p in pts], source, "level study")
+    check_points([p.spl_db for p in pts], [p.id for p in pts], source, "level study")
     spl = np.array([p.spl_db for p in pts])
     p_rms = spl_to_pressure_pa(spl)
     q = np.array([p.q for p in pts])
@@ -2042,7 +2132,7 @@ def level_points(measured: Sequence[Measured], source: str) -> list[LevelPoint]:
         if r.drive_displacement_over_diameter is not None:
             xd = r.drive_displacement_over_diameter
         elif r.object is not None:
-            xd = neck_displacement_over_diameter(spl, r.object, r.air)
+            xd = neck_displacement_over_diameter(spl, r.f0_hz, r.object, r.air)
         else:
             xd = math.nan
         out.append(LevelPoint(id=m.row.id, spl_db=float(spl), spl_source=src, f0_hz=r.f0_hz,
@@ -2098,7 +2188,7 @@ class PowerLawFit:
         d = {f.name: getattr(self, f.name) for f in fields(self)}
         d["line"] = self.line.to_dict()
         d["flags"] = _flags_dicts(self.flags)
-        return {"kind": "characterize.power-law/1", **d}
+        return {"schema": "characterize.power-law/1", **d}
 
 
 def fit_power_law(spl_db: Sequence[float], force_n: Sequence[float],
@@ -2150,7 +2240,7 @@ def fit_power_law(spl_db: Sequence[float], force_n: Sequence[float],
     """
     spl = np.asarray(spl_db, dtype=float)
     force = np.asarray(force_n, dtype=float)
-    _check_points(list(spl), [f"{v:g} dB" for v in spl], source, "power-law fit")
+    check_points(list(spl), [f"{v:g} dB" for v in spl], source, "power-law fit")
     if np.any(~np.isfinite(force)) or np.any(force <= 0):
         bad = float(force[~(np.isfinite(force) & (force > 0))][0])
         raise InputError(source, quantity, f"every force must be > 0 for a fit on log axes, got "
@@ -2166,13 +2256,14 @@ def fit_power_law(spl_db: Sequence[float], force_n: Sequence[float],
     se_coef = coef * math.log(10.0) * line.intercept_stderr
     ratio = 10.0 ** (n / 2.0)
     se_ratio = ratio * math.log(10.0) / 2.0 * se_n
-    if se_n > 0:
-        z = (n - SQUARE_LAW_EXPONENT) / se_n
+    dev = n - SQUARE_LAW_EXPONENT
+    if abs(dev) < 1e-9:  # exact to rounding (noise-free data): the error is rounding too
+        z, consistent = 0.0, True
+    elif se_n > 0:
+        z = dev / se_n
         consistent = abs(z) <= SQUARE_LAW_SIGMAS
     else:
-        z = 0.0 if abs(n - SQUARE_LAW_EXPONENT) < 1e-9 else math.copysign(math.inf,
-                                                                         n - SQUARE_LAW_EXPONENT)
-        consistent = abs(n - SQUARE_LAW_EXPONENT) < 1e-9
+        z, consistent = math.copysign(math.inf, dev), False
     flags: list[Flag] = []
     if not consistent:
         flags.append(Flag("not-square-law", "info",

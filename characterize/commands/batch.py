@@ -66,6 +66,10 @@ def batch(manifest: Path, spec_path: Path, out_dir: Path, workers: int | None, r
         except BatchInterrupted as exc:
             click.echo(f"\ncharacterize: batch interrupted: {exc}", err=True)
             sys.exit(1)
+        except KeyboardInterrupt:
+            click.echo(f"\ncharacterize: batch interrupted: {counts['done']} of {n} items are "
+                       f"saved in {Path(out_dir) / 'items'}; rerun with --resume", err=True)
+            sys.exit(1)
     written = write_reports(summary, out_dir)
     st = summary.stats
     click.echo(f"{st.n_items} items: {st.n_pass} pass, {st.n_fail} fail, {st.n_error} "

@@ -29,8 +29,8 @@ def _level_text(s: Any) -> str:
     ]
     if s.onset_spl_db == s.onset_spl_db:
         xd = s.onset_displacement_over_diameter
-        lines.append(f"  onset (Q down {100 * s.q_drop_fraction:.0f} %): {s.onset_spl_db:.1f} ± "
-                     f"{s.onset_spl_stderr_db:.1f} dB ({s.onset_pressure_pa:.3g} Pa rms"
+        lines.append(f"  onset (Q down {100 * s.q_drop_fraction:.0f} %): {s.onset_spl_db:.2f} ± "
+                     f"{s.onset_spl_stderr_db:.2f} dB ({s.onset_pressure_pa:.3g} Pa rms"
                      + (f", neck displacement {xd:.3g} of the diameter" if xd == xd else "") + ")")
     else:
         lines.append("  onset: no Q drop detected"
@@ -93,8 +93,8 @@ def levels(manifest: Path, out_dir: Path | None, as_json: bool, force: bool) -> 
     from ..errors import FitError, InputError
     from ..fileio import check_writable
     from ..report.document import to_json, write_document
-    from ..tuning import (fit_power_law, is_force_table, level_points, level_study,
-                          measure_rows, read_force_table, read_manifest)
+    from ..tuning import (check_points, fit_power_law, is_force_table, level_points,
+                          level_study, measure_rows, read_force_table, read_manifest)
 
     targets = []
     if out_dir is not None:
@@ -115,6 +115,9 @@ def levels(manifest: Path, out_dir: Path | None, as_json: bool, force: bool) -> 
         if len(rows) < 3:
             raise InputError(str(manifest), None,
                              f"a level study needs at least 3 levels, got {len(rows)}")
+        if all("spl_db" in r.values for r in rows):
+            check_points([r.values["spl_db"] for r in rows], [r.id for r in rows],
+                         str(manifest), "level study")
         measured, failures = measure_rows(rows)
         points = level_points(measured, str(manifest))
         if len(points) < 3 and failures:
@@ -129,7 +132,7 @@ def levels(manifest: Path, out_dir: Path | None, as_json: bool, force: bool) -> 
         from ..report import tuning_plots
 
         write_document(targets[0], doc)
-        if doc["kind"] == "characterize.levels/1":
+        if doc["schema"] == "characterize.levels/1":
             tuning_plots.levels_plot(result, targets[1])
         else:
             tuning_plots.power_law_plot(result, targets[1])

@@ -18,9 +18,9 @@ def _describe(s: Any, target: float) -> str:
 
 
 def _text(m: Any) -> str:
-    lines = [f"{m.count} of {len(m.items)} results nearest {m.target_f0_hz:.3f} Hz by "
-             f"{m.by} (f0 brought to c = {m.reference_speed_of_sound_m_s:.2f} m/s, "
-             f"{m.reference_temperature_c:.1f} °C)",
+    lines = [f"{m.count} of {len(m.items)} results most alike and nearest "
+             f"{m.target_f0_hz:.3f} Hz, by {m.by} (f0 brought to c = "
+             f"{m.reference_speed_of_sound_m_s:.2f} m/s, {m.reference_temperature_c:.1f} °C)",
              f"  best:   {_describe(m.best, m.target_f0_hz)}"]
     for i, alt in enumerate(m.alternatives, 1):
         lines.append(f"  alt {i}:  {_describe(alt, m.target_f0_hz)}")
@@ -47,9 +47,12 @@ def match(results: tuple[Path, ...], count: int, target_hz: float, by: str, alte
     """Pick the K fitted RESULTS (result.json files, or folders holding one) whose
     f0 (and Q, with --by f0,q) lie closest together and nearest the target.
 
-    With --by f0 the set is the K items nearest the target; with --by f0,q the
-    worst f0 deviation (in half-power half-bandwidths) and the Q spread are
-    weighed together. The chosen set's spread and the next-best sets are shown.
+    With --by f0 a set's cost is its f0 spread plus the offset of its centre
+    from the target (both count alike); with --by f0,q that figure, in half-power
+    half-bandwidths, and the relative Q spread are added in quadrature. The
+    search is exact. The chosen set's spread and the next-best sets are shown;
+    f0 values measured at different temperatures are first brought to one speed
+    of sound.
     """
     from ..report.document import to_json
     from ..tuning import load_result, match_sets

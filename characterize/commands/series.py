@@ -80,7 +80,8 @@ def series(manifest: Path, vary: str, as_json: bool, out_dir: Path | None, force
     from ..errors import InputError
     from ..fileio import check_writable
     from ..report.document import to_json, write_document
-    from ..tuning import VARY, SeriesPoint, fit_series, measure_rows, read_manifest
+    from ..tuning import (VARY, SeriesPoint, check_points, fit_series, measure_rows,
+                          read_manifest)
 
     column, kind = VARY[vary]
     targets = []
@@ -91,8 +92,8 @@ def series(manifest: Path, vary: str, as_json: bool, out_dir: Path | None, force
         for t in targets:
             check_writable(t, force=force)
     rows = read_manifest(manifest, {column: kind}, required_values=(column,))
-    if len(rows) < 3:
-        raise InputError(str(manifest), None, f"a series needs at least 3 points, got {len(rows)}")
+    check_points([r.values[column] for r in rows], [r.id for r in rows], str(manifest),
+                 "trim series" if vary == "neck-length" else "fill series")
     measured, failures = measure_rows(rows)
     points = [SeriesPoint(id=m.row.id, value=m.row.values[column], f0_hz=m.result.f0_hz,
                           f0_stderr_hz=m.result.f0_stderr_hz,

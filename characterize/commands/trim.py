@@ -10,40 +10,50 @@ import click
 from ._errors import handles_errors
 
 
+def _pm(value: float, stderr: float, decimals: int = 2) -> str:
+    """'7.67 ± 0.00031': the value to fixed decimals, the error to two significant digits."""
+    return f"{value:.{decimals}f} ± {stderr:.2g}"
+
+
 def _text(a: Any) -> str:
     """The advice as a few lines of text (units on every figure)."""
     mm, ml = 1e3, 1e6
     rel = a.target_f0_hz / a.f0_hz - 1
     n, v, d = a.neck, a.volume, a.diameter
     lines = [
-        f"{a.name}: measured f0 {a.f0_hz:.3f} ± {a.f0_stderr_hz:.3f} Hz at "
+        f"{a.name}: measured f0 {_pm(a.f0_hz, a.f0_stderr_hz, 3)} Hz at "
         f"{a.temperature_c:.1f} °C (c = {a.speed_of_sound_m_s:.2f} m/s); target "
         f"{a.target_f0_hz:.3f} Hz ({100 * rel:+.2f} %)",
-        f"  measured end correction {a.end_correction_m * mm:.2f} ± "
-        f"{a.end_correction_stderr_m * mm:.2f} mm = {a.end_correction_over_radius:.2f} neck "
+        f"  measured end correction "
+        f"{_pm(a.end_correction_m * mm, a.end_correction_stderr_m * mm)} mm = "
+        f"{a.end_correction_over_radius:.3f} neck "
         f"radii (textbook {a.textbook_end_correction_m * mm:.2f} mm)",
     ]
     if n.cut_m >= 0 and n.possible:
-        lines.append(f"  neck:     cut {n.cut_m * mm:.2f} ± {n.cut_stderr_m * mm:.2f} mm "
+        lines.append(f"  neck:     cut {_pm(n.cut_m * mm, n.cut_stderr_m * mm)} mm "
                      f"(length {a.length_m * mm:.2f} -> {n.new_length_m * mm:.2f} mm); the "
                      f"textbook end correction would say {n.textbook_cut_m * mm:.2f} mm")
     elif n.cut_m < 0:
-        lines.append(f"  neck:     cannot be trimmed to this: it needs {-n.cut_m * mm:.2f} ± "
-                     f"{n.cut_stderr_m * mm:.2f} mm MORE neck (length "
+        lines.append(f"  neck:     cannot be trimmed to this: it needs "
+                     f"{_pm(-n.cut_m * mm, n.cut_stderr_m * mm)} mm MORE neck (length "
                      f"{n.new_length_m * mm:.2f} mm)")
     else:
         lines.append(f"  neck:     impossible: removing the whole neck gives at most "
                      f"{n.max_f0_hz:.2f} Hz")
     if v.change_m3 <= 0:
-        lines.append(f"  volume:   take up {-v.change_m3 * ml:.1f} ± {v.change_stderr_m3 * ml:.1f} "
+        lines.append(f"  volume:   take up {_pm(-v.change_m3 * ml, v.change_stderr_m3 * ml, 1)} "
                      f"mL (e.g. add {v.water_to_add_m3 * ml:.1f} mL of water; "
                      f"{a.volume_m3 * ml:.1f} -> {v.new_volume_m3 * ml:.1f} mL)")
     else:
-        lines.append(f"  volume:   enlarge by {v.change_m3 * ml:.1f} ± {v.change_stderr_m3 * ml:.1f}"
+        lines.append(f"  volume:   enlarge by {_pm(v.change_m3 * ml, v.change_stderr_m3 * ml, 1)}"
                      f" mL ({a.volume_m3 * ml:.1f} -> {v.new_volume_m3 * ml:.1f} mL)")
     verb = "drill to" if d.possible_by_drilling else "sleeve to"
-    lines.append(f"  bore:     {verb} {d.new_diameter_m * mm:.2f} ± "
-                 f"{d.new_diameter_stderr_m * mm:.2f} mm (from {a.diameter_m * mm:.2f} mm)")
+    if d.new_diameter_m != d.new_diameter_m:
+        lines.append("  bore:     not available (see the flags)")
+    else:
+        lines.append(f"  bore:     {verb} "
+                     f"{_pm(d.new_diameter_m * mm, d.new_diameter_stderr_m * mm)} mm "
+                     f"(from {a.diameter_m * mm:.2f} mm)")
     if a.flags:
         lines.append("  flags:")
         lines += [f"    [{f.severity}] {f.code}: {f.message}" for f in a.flags]

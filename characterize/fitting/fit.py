@@ -167,6 +167,21 @@ def local_kernel(tf: TransferFunction, f: NDArray[np.float64]) -> Kernel:
     return off, w2
 
 
+def stderr_scale(redchi: float, weighted: bool, tf: TransferFunction) -> float:
+    """Factor on the covariance errors, from the reduced chi-square.
+
+    Sweep path: the per-bin noise is measured in the noise-only stretch of the
+    impulse responses, so the errors are only ever scaled up (a chi-square above 1
+    means model error, which the errors should then include). Cross-spectral
+    paths: the coherence-based error (Bendat & Piersol) carries the leakage of
+    short segments as if it were noise and overstates the per-bin error, so the
+    residuals set the scale both ways. No noise estimate: the residuals set it.
+    """
+    if weighted and tf.coherence is None:
+        return math.sqrt(max(1.0, redchi))
+    return math.sqrt(redchi)
+
+
 def residual_at(p: NDArray[np.float64], f: NDArray[np.float64], h: NDArray[np.complex128],
                 sig: NDArray[np.float64], sign: float, kernel: Kernel = None,
                 form: str = "linear") -> NDArray[np.float64]:
@@ -286,10 +301,7 @@ def fit_transfer(tf: TransferFunction, band_hz: tuple[float, float] | None = Non
     chi2 = float(np.sum(residual_at(p_hat, f, h, sig, sign, kern, tf.kernel_form) ** 2))
     dof = max(1, 2 * f.size - len(names))
     redchi = chi2 / dof
-    # Honest errors: with a noise estimate, the covariance is scaled up (never
-    # down) when the residuals say the noise was underestimated; without one,
-    # the residuals set the scale.
-    scale = math.sqrt(max(1.0, redchi)) if weighted else math.sqrt(redchi)
+    scale = stderr_scale(redchi, weighted, tf)
     i_f, i_q = names.index("f0"), names.index("q")
     corr = float(cov[i_f, i_q] / math.sqrt(cov[i_f, i_f] * cov[i_q, i_q]))
 

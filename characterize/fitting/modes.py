@@ -24,7 +24,7 @@ from numpy.typing import NDArray
 
 from ..errors import FitError, InputError
 from ..transfer import TransferFunction, peak_search_values
-from .fit import MAX_DELAY_S, MIN_POINTS, covariance
+from .fit import MAX_DELAY_S, MIN_POINTS, covariance, stderr_scale
 from .models import oscillator
 
 #: A peak must stand this many dB above its surroundings (scipy.signal.find_peaks
@@ -229,7 +229,7 @@ def fit_modes(tf: TransferFunction, n_modes: int, *, background_order: int = -1,
     chi2 = float(np.sum(resid_vec(v) ** 2))
     dof = max(1, 2 * f.size - len(free))
     redchi = chi2 / dof
-    scale = math.sqrt(max(1.0, redchi)) if weighted else math.sqrt(redchi)
+    scale = stderr_scale(redchi, weighted, tf)
     se = np.zeros(v.size)
     se[free] = np.sqrt(np.diag(cov_free)) * scale
     modes = tuple(Mode(v[3 * k], se[3 * k], v[3 * k + 1], se[3 * k + 1], v[3 * k + 2],

@@ -11,10 +11,23 @@ geometry
     :func:`~characterize.physics.geometry.load_object`: the object file (TOML)
     to a :class:`~characterize.physics.geometry.ResonatorObject` in SI units.
 helmholtz
-    End corrections, the lumped Helmholtz prediction
-    (:func:`~characterize.physics.helmholtz.predict`) and its inversion from a
-    measured f0 (:func:`~characterize.physics.helmholtz.derive_from_f0`).
+    :func:`~characterize.physics.helmholtz.predict` (lumped, corrected lumped
+    and distributed f0, next modes, predicted Q with each contribution) and its
+    inversion from a measured f0 (:func:`~characterize.physics.helmholtz.derive_from_f0`).
+radiation
+    End corrections (round, slot, step), radiation resistance and the
+    outside-microphone correction.
+losses
+    Boundary layers, resistances, the Q budget, Rayleigh's one-third corrections.
+distributed
+    The 1-D lossy bore model and its complex roots.
+nonlinear
+    :func:`~characterize.physics.nonlinear.drive_state`: neck motion from the cavity level.
+water
+    Water density (Tanaka et al. 2001) for volumes measured by filling.
+sketch
+    To-scale drawing of an object (matplotlib through report.plots, lazily).
 
 This package imports only :mod:`characterize.units`, :mod:`characterize.errors`
-and numpy/scipy.
+and numpy (sketch imports :mod:`characterize.report.plots` inside its function).
 """

@@ -1,4 +1,4 @@
-"""Distributed (1-D) model: the resonator as a lossy bore, closed at the bottom.
+r"""Distributed (1-D) model: the resonator as a lossy bore, closed at the bottom.
 
 The cavity is a stack of ducts (round or rectangular) from the closed end up;
 the neck (one or several identical openings) joins the top and radiates. Plane
@@ -43,6 +43,7 @@ __all__ = [
     "Duct",
     "Bore",
     "Resonance",
+    "bessel_ratio",
     "duct_parameters",
     "mouth_impedance",
     "radiation_impedance",
@@ -153,11 +154,59 @@ class Resonance:
     q: float
 
 
-def _bessel_ratio(z: NDArray[np.complex128]) -> NDArray[np.complex128]:
-    """2 J1(z) / (z J0(z)), with scaled Bessel functions (no overflow)."""
-    from scipy.special import jve
+#: |z| above which :func:`bessel_ratio` uses the asymptotic (Hankel) expansion.
+_ASYMPTOTIC_ABS_Z = 25.0
+# Hankel's asymptotic coefficients a_k(nu) for nu = 0 and 1, k = 0..4.
+_A0 = (1.0, -1.0 / 8.0, 9.0 / 128.0, -225.0 / 3072.0, 11025.0 / 98304.0)
+_A1 = (1.0, 3.0 / 8.0, -15.0 / 128.0, 315.0 / 3072.0, -14175.0 / 98304.0)
 
-    return 2.0 * jve(1, z) / (z * jve(0, z))
+
+def bessel_ratio(z: NDArray[np.complex128]) -> NDArray[np.complex128]:
+    r"""The Zwikker-Kosten function :math:`F(z) = 2J_1(z)/(z J_0(z))` for
+    :math:`\arg z` near :math:`-\pi/4` (numpy only, no overflow).
+
+    For :math:`|z| < 25` the power series of :math:`J_0` and :math:`J_1`
+    (80 terms); above, Hankel's asymptotic expansion of
+    :math:`H^{(1)}_\nu`, to which :math:`2J_\nu` tends when
+    :math:`\mathrm{Im}\,z \to -\infty`:
+
+    .. math::
+
+        \frac{J_1}{J_0} \approx -j\,\frac{\sum_k j^k a_k(1) z^{-k}}{\sum_k j^k a_k(0) z^{-k}},
+        \quad a_k(\nu) = \frac{\prod_{m=1}^{k}\left(4\nu^2 - (2m-1)^2\right)}{k!\,8^k}
+
+    (the neglected part is of order :math:`e^{-2|\mathrm{Im}\,z|}`). Checked
+    against scipy.special.jv in the tests.
+
+    References
+    ----------
+    M. Abramowitz, I. A. Stegun, *Handbook of Mathematical Functions* (1964),
+    eqs. 9.1.10 (series) and 9.2.7-9.2.10 (Hankel's expansion).
+    """
+    z = np.asarray(z, dtype=np.complex128)
+    out = np.empty_like(z)
+    big = np.abs(z) >= _ASYMPTOTIC_ABS_Z
+    if np.any(big):
+        zb = z[big]
+        num = sum((1j**k) * c / zb**k for k, c in enumerate(_A1))
+        den = sum((1j**k) * c / zb**k for k, c in enumerate(_A0))
+        out[big] = 2.0 * (-1j) * num / (den * zb)
+    small = ~big
+    if np.any(small):
+        zs = z[small]
+        x = -(zs * zs) / 4.0
+        term0 = np.ones_like(zs)
+        term1 = np.ones_like(zs)
+        j0 = term0.copy()
+        s1 = term1.copy()
+        for k in range(1, 80):
+            term0 = term0 * x / (k * k)
+            term1 = term1 * x / (k * (k + 1))
+            j0 = j0 + term0
+            s1 = s1 + term1
+        # 2 J1/(z J0) = 2 (z/2) s1 / (z j0) = s1 / j0
+        out[small] = s1 / j0
+    return out
 
 
 def duct_parameters(duct: Duct, omega: NDArray[np.complex128], air: AirState,
@@ -207,8 +256,8 @@ def duct_parameters(duct: Duct, omega: NDArray[np.complex128], air: AirState,
         nu_t = air.thermal_conductivity_w_mk / (rho * air.cp_j_kgk)
         if duct.circular:
             a = duct.radius_m
-            fv = _bessel_ratio(np.sqrt(-1j * w / nu_v) * a)
-            ft = _bessel_ratio(np.sqrt(-1j * w / nu_t) * a)
+            fv = bessel_ratio(np.sqrt(-1j * w / nu_v) * a)
+            ft = bessel_ratio(np.sqrt(-1j * w / nu_t) * a)
         else:
             ratio = duct.perimeter_m / s
             fv = ratio * np.sqrt(nu_v / (1j * w))
@@ -363,7 +412,7 @@ def resonances(bore: Bore, air: AirState, f_first_guess_hz: float, f_max_hz: flo
     found = [first]
     if n_max <= 1 or f_max_hz <= first.f_hz * 1.2:
         return found
-    f = np.geomspace(first.f_hz * 1.2, f_max_hz, 3000)
+    f = np.geomspace(first.f_hz * 1.2, f_max_hz, 1200)
     mag = np.abs(characteristic_function(bore, 2.0 * np.pi * f.astype(np.complex128), air,
                                          lossless))
     if lossless:

@@ -75,6 +75,7 @@ __all__ = [
     "ResonatorObject",
     "load_object",
     "parse_object",
+    "parse_co2",
 ]
 
 #: Allowed values of ``neck.outer_end`` and ``neck.inner_end``.
@@ -238,9 +239,11 @@ class Cavity:
             return 2.0 * (w * d + w * h + d * h)
         if self.shape == "profile":
             radii = [d / 2.0 * math.sqrt(s) for d, _ in self.sections]
-            side = sum(2.0 * math.pi * r * ln for r, (_, ln) in zip(radii, self.sections))
+            side = sum(2.0 * math.pi * r * ln
+                       for r, (_, ln) in zip(radii, self.sections, strict=True))
             ends = math.pi * radii[0] ** 2 + math.pi * radii[-1] ** 2
-            steps = sum(abs(math.pi * (r1 * r1 - r0 * r0)) for r0, r1 in zip(radii, radii[1:]))
+            steps = sum(abs(math.pi * (r1 * r1 - r0 * r0))
+                        for r0, r1 in zip(radii, radii[1:], strict=False))
             return side + ends + steps
         r = (self.volume_m3 / (2.0 * math.pi)) ** (1.0 / 3.0)
         return 6.0 * math.pi * r * r
@@ -620,6 +623,9 @@ def _sections(value: Any, source: str, field: str) -> tuple[tuple[float, float],
                     length(pair[1], source, f"{where}.length")))
     return tuple(out)
 
+
+#: Public name of the CO2 parser (command-line options use it too).
+parse_co2 = _co2
 
 #: kind of value -> parser(value, source, dotted_field)
 _PARSERS: dict[str, Callable[[Any, str, str], Any]] = {

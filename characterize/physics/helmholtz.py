@@ -1,45 +1,70 @@
-"""Lumped Helmholtz resonator: end corrections, f0 from geometry, and back.
+"""Helmholtz resonators and closed-open tubes: f0, higher modes and Q from the geometry.
 
-- :func:`end_correction_m` -- length added at one end of the neck.
+- :func:`neck_end_corrections` -- both ends of the neck for an object.
 - :func:`helmholtz_f0_hz` -- the lumped resonance formula.
 - :func:`acoustic_mass_kg_m4`, :func:`compliance_m3_pa` -- the lumped elements.
-- :func:`predict` -- object + air -> :class:`Prediction`.
+- :func:`bore_from_object` -- the object as a 1-D bore (distributed model).
+- :func:`predict` -- object + air -> :class:`Prediction` (lumped, corrected
+  lumped and distributed f0, next modes, predicted Q with each contribution).
 - :func:`derive_from_f0` -- measured f0 + object + air -> :class:`Derived`
   (effective neck length and end correction, with standard errors).
 
-Everything is SI: m, m^2, m^3, m/s, kg/m^3, Hz.
+Everything is SI: m, m^2, m^3, m/s, kg/m^3, Hz, Pa s/m^3.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, field
+from typing import Any
 
 from .air import AirState
 from .geometry import ResonatorObject
+from .losses import (
+    VISCOUS_END_TERM_OVER_RADIUS,
+    VISCOUS_END_TERM_RANGE_OVER_RADIUS,
+    QBudget,
+    boundary_layer_shift,
+    cavity_inertia_length_m,
+    cavity_viscous_resistance_pa_s_m3,
+    thermal_boundary_layer_m,
+    thermal_conductance_m3_pa_s,
+    viscous_boundary_layer_m,
+    viscous_resistance_pa_s_m3,
+)
+from .radiation import (
+    END_FACTORS,
+    FLANGED_END_FACTOR,
+    PISTON_END_FACTOR,
+    UNFLANGED_END_FACTOR,
+    end_correction_m,
+    flanged_rectangle_end_correction_m,
+    ingard_inner_end_correction_m,
+    radiation_resistance_pa_s_m3,
+    step_end_correction_m,
+)
 
 __all__ = [
     "FLANGED_END_FACTOR",
+    "PISTON_END_FACTOR",
     "UNFLANGED_END_FACTOR",
     "END_FACTORS",
     "PLAUSIBLE_END_CORRECTION_OVER_RADIUS",
+    "SPHERE_SLICES",
+    "MAX_MODES",
+    "F0_TOLERANCE_BY_MODEL",
+    "EndCorrections",
     "end_correction_m",
+    "neck_end_corrections",
     "helmholtz_f0_hz",
     "acoustic_mass_kg_m4",
     "compliance_m3_pa",
+    "bore_from_object",
     "Prediction",
     "predict",
     "Derived",
     "derive_from_f0",
 ]
-
-#: End correction / radius of a flanged (baffled) end: 8/(3 pi), Rayleigh 1896.
-FLANGED_END_FACTOR = 8.0 / (3.0 * math.pi)
-#: End correction / radius of an unflanged thin-walled end, Levine & Schwinger 1948.
-UNFLANGED_END_FACTOR = 0.6133
-
-#: end condition -> end correction / radius
-END_FACTORS = {"flanged": FLANGED_END_FACTOR, "unflanged": UNFLANGED_END_FACTOR}
 
 # Range of the total end correction (both ends) over the neck radius that is
 # accepted as plausible for a measured object. The physics sheet section 3
@@ -50,6 +75,21 @@ END_FACTORS = {"flanged": FLANGED_END_FACTOR, "unflanged": UNFLANGED_END_FACTOR}
 # not well described by a single volume.
 PLAUSIBLE_END_CORRECTION_OVER_RADIUS = (0.6, 2.4)
 
+#: Slices of the 1-D model of a sphere (volume-exact stacked cylinders).
+SPHERE_SLICES = 32
+#: Resonances reported (the first and the next ones below the 1-D limit).
+MAX_MODES = 5
+
+#: Suggested f0-mismatch tolerance by how the cavity is described (model
+#: uncertainty plus typical input uncertainty). Known shapes: the 1-D model is
+#: within 0.5 % of openwind (tests/test_openwind.py); a neck diameter read to
+#: 1 % moves f0 by 1 %, the temperature to 1 K by 0.17 % -> 2 %. Spheres: the
+#: 1-D and 3-D models differ by about 2 %, half of it is added -> 2.5 %.
+#: Volume only: the cavity's own inertia and the inner correction's reduction
+#: are unknown (up to about 3 % for squat or narrow cavities) -> 3.5 %.
+F0_TOLERANCE_BY_MODEL = {"distributed": 0.02, "tube-distributed": 0.02,
+                         "sphere-midpoint": 0.025, "corrected-lumped": 0.035}
+
 
 def _positive(**values: float) -> None:
     for name, value in values.items():
@@ -59,47 +99,104 @@ def _positive(**values: float) -> None:
             raise ValueError(f"{name} must be finite and > 0, got {value!r}")
 
 
-def end_correction_m(radius_m: float, condition: str) -> float:
-    r"""End correction of one end of a round neck at low frequency (ka << 1).
+@dataclass(frozen=True, slots=True)
+class EndCorrections:
+    """The two ends of one opening, m.
 
-    .. math::
+    Attributes
+    ----------
+    outer_m, inner_m : float
+        End corrections used by the prediction, m.
+    inner_alternative_m : float
+        Ingard's (1953) form of the inner correction, for comparison, m
+        (equal to ``inner_m`` when the inner end is not a step into a
+        cavity of known section).
+    shape_factor : float
+        Slot correction over that of the circle of equal area (1 for round).
+    radius_ratio : float or None
+        xi = sqrt(S / S_c), opening over cavity cross-section (per opening's
+        share), when the cavity's section is known.
+    outer_source, inner_source : str
+        Which formula (or "explicit") gave each value.
+    """
 
-        \delta_\text{flanged} = \frac{8}{3\pi} a \approx 0.8488\,a, \qquad
-        \delta_\text{unflanged} = 0.6133\,a
+    outer_m: float
+    inner_m: float
+    inner_alternative_m: float
+    shape_factor: float
+    radius_ratio: float | None
+    outer_source: str
+    inner_source: str
 
-    The flanged value is the mass end correction of a rigid piston in an
-    infinite baffle; the unflanged value is the exact low-frequency limit
-    for a thin-walled pipe radiating into free space.
+    @property
+    def total_m(self) -> float:
+        return self.outer_m + self.inner_m
+
+
+def neck_end_corrections(obj: ResonatorObject) -> EndCorrections:
+    r"""End corrections of the object's neck (one opening).
+
+    - Outer end: :math:`0.6133a` unflanged (Levine & Schwinger 1948) or
+      :math:`0.8216a` flanged (Norris & Sheng 1989), or the explicit value.
+    - Inner end, flush with the cavity wall ("flanged"): the step correction
+      of Kergomard & Garcia (1987) with :math:`\xi = \sqrt{S/S_c}`, S the
+      total open area and :math:`S_c` the cavity's cross-section at the
+      neck, so each of N openings gets a 1/N share of the cavity's section;
+      for volume only, :math:`\xi = 0` (:math:`0.82a`, a wall of a large
+      cavity). Protruding into the cavity ("unflanged"): :math:`0.6133a`.
+      Ingard's (1953) :math:`0.48\sqrt{S}(1 - 1.25\xi)` is reported beside it.
+    - Slots: the round value for the equal-area radius times the ratio of
+      Rayleigh's mass integrals, rectangle over circle (own approximation;
+      exact for flanged ends with uniform velocity).
+    - Tubes: no inner end (closed).
 
     Parameters
     ----------
-    radius_m : float
-        Neck radius a, m.
-    condition : str
-        ``"flanged"`` or ``"unflanged"``.
+    obj : ResonatorObject
 
     Returns
     -------
-    float
-        End correction, m.
-
-    Raises
-    ------
-    ValueError
-        Unknown condition (the message lists the allowed ones), or a radius
-        that is not finite and positive.
+    EndCorrections
 
     References
     ----------
-    Lord Rayleigh, *The Theory of Sound*, vol. II, 2nd ed. (1896), section 302
-    (section from memory). H. Levine, J. Schwinger, "On the radiation of
-    sound from an unflanged circular pipe", Phys. Rev. 73(4), 383-406 (1948).
+    See :func:`~characterize.physics.radiation.end_correction_m`,
+    :func:`~characterize.physics.radiation.step_end_correction_m`,
+    :func:`~characterize.physics.radiation.ingard_inner_end_correction_m` and
+    :func:`~characterize.physics.radiation.flanged_rectangle_end_correction_m`.
     """
-    if condition not in END_FACTORS:
-        allowed = ", ".join(repr(c) for c in END_FACTORS)
-        raise ValueError(f"condition must be one of {allowed}, got {condition!r}")
-    _positive(radius_m=radius_m)
-    return END_FACTORS[condition] * radius_m
+    neck, cav = obj.neck, obj.cavity
+    a = neck.radius_m
+    if neck.shape == "slot":
+        assert neck.width_m is not None and neck.height_m is not None
+        factor = flanged_rectangle_end_correction_m(neck.width_m, neck.height_m) / (
+            PISTON_END_FACTOR * a)
+    else:
+        factor = 1.0
+    if neck.outer_end_correction_m is not None:
+        outer, outer_src = neck.outer_end_correction_m, "explicit"
+    else:
+        outer = factor * end_correction_m(a, neck.outer_end)
+        outer_src = ("Levine & Schwinger 1948" if neck.outer_end == "unflanged"
+                     else "Norris & Sheng 1989")
+    side = cav.neck_side_area_m2
+    xi = None if side is None or obj.kind == "tube" else math.sqrt(neck.area_m2 / side)
+    if obj.kind == "tube":
+        inner, inner_src, alt = 0.0, "closed end", 0.0
+    elif neck.inner_end_correction_m is not None:
+        inner, inner_src = neck.inner_end_correction_m, "explicit"
+        alt = inner
+    elif neck.inner_end == "unflanged":
+        inner, inner_src = factor * end_correction_m(a, "unflanged"), "Levine & Schwinger 1948"
+        alt = inner
+    elif xi is None:
+        inner, inner_src = factor * step_end_correction_m(a, 0.0), "Kergomard & Garcia 1987"
+        alt = factor * ingard_inner_end_correction_m(a, 0.0)
+    else:
+        inner = factor * step_end_correction_m(a, min(xi, 1.0))
+        inner_src = "Kergomard & Garcia 1987"
+        alt = factor * ingard_inner_end_correction_m(a, xi)
+    return EndCorrections(outer, inner, alt, factor, xi, outer_src, inner_src)
 
 
 def helmholtz_f0_hz(
@@ -209,24 +306,181 @@ def compliance_m3_pa(volume_m3: float, density_kg_m3: float, speed_of_sound_m_s:
     return volume_m3 / (density_kg_m3 * speed_of_sound_m_s**2)
 
 
+def bore_from_object(obj: ResonatorObject, *, end_losses: bool = True,
+                     viscous_end_term_over_radius: float = VISCOUS_END_TERM_OVER_RADIUS,
+                     sphere_slices: int = SPHERE_SLICES) -> Any:
+    """The object as a :class:`~characterize.physics.distributed.Bore`, or None.
+
+    Cavity ducts follow the shape (areas scaled so their volume equals the
+    object's volume): one round duct for a cylinder, one rectangular duct
+    (width x depth, ``height`` long) for a box, the listed sections for a
+    profile, and ``sphere_slices`` volume-exact slices for a sphere, cut where
+    its section equals the neck's total area (the taper then stands in for the
+    inner end correction, so none is added). Volume only gives None.
+
+    Parameters
+    ----------
+    obj : ResonatorObject
+    end_losses : bool
+        Give the closed end and the steps their thermal boundary layer (the
+        1-D reference models of the tests have none).
+    viscous_end_term_over_radius : float
+        Viscous end term per opening, over its radius (see
+        :data:`~characterize.physics.losses.VISCOUS_END_TERM_OVER_RADIUS`).
+    sphere_slices : int
+        Number of slices for a sphere.
+
+    Returns
+    -------
+    Bore or None
+    """
+    from .distributed import Bore, Duct
+
+    neck, cav = obj.neck, obj.cavity
+    ends = neck_end_corrections(obj)
+    if neck.shape == "slot":
+        assert neck.width_m is not None and neck.height_m is not None
+        neck_duct = Duct.rectangle(neck.width_m, neck.height_m, neck.length_m)
+    else:
+        neck_duct = Duct.round(neck.diameter_m, neck.length_m)
+    end_len = viscous_end_term_over_radius * neck.radius_m
+    if obj.kind == "tube":
+        return Bore((), neck_duct, 1, (), 0.0, ends.outer_m, neck.outer_end,
+                    neck_duct.area_m2 if end_losses else 0.0, (), end_len / 2.0)
+    s_scale = cav.area_scale
+    lin = math.sqrt(s_scale)
+    inner = ends.inner_m
+    if cav.shape == "cylinder":
+        assert cav.diameter_m is not None and cav.length_m is not None
+        ducts: list[Any] = [Duct.round(cav.diameter_m * lin, cav.length_m)]
+    elif cav.shape == "box":
+        assert cav.width_m and cav.depth_m and cav.height_m
+        ducts = [Duct.rectangle(cav.width_m * lin, cav.depth_m * lin, cav.height_m)]
+    elif cav.shape == "profile":
+        ducts = [Duct.round(d * lin, ln) for d, ln in cav.sections]
+    elif cav.shape == "sphere":
+        assert cav.diameter_m is not None
+        r = cav.diameter_m / 2.0 * lin
+        a_cut = min(math.sqrt(neck.area_m2 / math.pi), 0.999 * r)
+        z_top = r + math.sqrt(r * r - a_cut * a_cut)
+        # slices uniform in polar angle (finer near the poles, where the section changes fast)
+        theta_top = math.acos((r - z_top) / r)  # polar angle from the bottom pole
+        edges = [r - r * math.cos(theta_top * i / sphere_slices)
+                 for i in range(sphere_slices + 1)]
+        ducts = []
+        for z0, z1 in zip(edges, edges[1:], strict=False):
+            h = z1 - z0
+            vol = math.pi * (r * r * h - ((z1 - r) ** 3 - (z0 - r) ** 3) / 3.0)
+            ducts.append(Duct.round(2.0 * math.sqrt(vol / h / math.pi), h))
+        inner = 0.0
+    else:
+        return None
+    areas = [d.area_m2 for d in ducts]
+    junctions = tuple(
+        step_end_correction_m(math.sqrt(min(a0, a1) / math.pi),
+                              math.sqrt(min(a0, a1) / max(a0, a1)))
+        for a0, a1 in zip(areas, areas[1:], strict=False)
+    ) if cav.shape != "sphere" else tuple(0.0 for _ in areas[1:])
+    if end_losses and cav.shape != "sphere":
+        steps = [abs(a1 - a0) for a0, a1 in zip(areas, areas[1:], strict=False)]
+        steps.append(max(areas[-1] - neck.area_m2, 0.0))
+        closed, step_walls = areas[0], tuple(steps)
+    else:
+        closed, step_walls = 0.0, ()
+    return Bore(tuple(ducts), neck_duct, neck.count, junctions, inner, ends.outer_m,
+                neck.outer_end, closed, step_walls, end_len)
+
+
 @dataclass(frozen=True, slots=True)
 class Prediction:
-    """Lumped prediction for one object at one air state.
+    """What the geometry predicts for one object at one air state.
+
+    The headline ``f0_hz`` is the best of the models (``model`` says which):
+    the distributed 1-D model for cylinders, boxes, profiles and tubes; for
+    spheres the midpoint of the 1-D model and the corrected lumped model with
+    the 3-D inner end correction; the corrected lumped model for cavities
+    given by volume only. ``effective_neck_length_m`` is the
+    lumped-equivalent effective length: the length that puts the plain lumped
+    formula at ``f0_hz`` (for a tube: a quarter wavelength), i.e. the same
+    quantity that :func:`derive_from_f0` measures; ``end_correction_m`` is
+    that length minus the neck's physical length. The ends themselves are
+    ``outer_end_correction_m`` and ``inner_end_correction_m``; their sum plus
+    the neck is ``geometric_effective_length_m``.
 
     Attributes
     ----------
     f0_hz : float
-        Resonance frequency, Hz.
-    effective_neck_length_m : float
-        Neck length plus both end corrections, m.
-    end_correction_m : float
-        Total end correction (outer + inner), m.
+        Best predicted resonance frequency, Hz.
+    effective_neck_length_m, end_correction_m : float
+        Lumped-equivalent effective length and its excess over the neck, m.
     outer_end_correction_m, inner_end_correction_m : float
         End correction of each end, m.
     acoustic_mass_kg_m4 : float
-        rho L_eff / S, kg/m^4.
+        rho L'/S with L' the geometric effective length, kg/m^4.
     compliance_m3_pa : float
-        V / (rho c^2), m^3/Pa.
+        V/(rho c^2), m^3/Pa.
+    model : str
+        ``"distributed"``, ``"corrected-lumped"``, ``"sphere-midpoint"`` or
+        ``"tube-distributed"``.
+    kind : str
+        ``"helmholtz"`` or ``"tube"``.
+    f0_lumped_hz : float
+        Plain lumped formula with the geometric effective length, Hz
+        (for a tube, c/(4 (L + delta))).
+    f0_corrected_lumped_hz : float
+        Lumped formula with Rayleigh's one-third corrections and the
+        boundary-layer shift, Hz.
+    f0_distributed_hz : float or None
+        First root of the lossy 1-D model, Hz (None for volume only).
+    modes_hz, modes_q : tuple of float
+        Resonances from the 1-D model below its validity limit (first
+        included), Hz, and their Q.
+    mode_limit_hz : float or None
+        First transverse cut-on (the 1-D model's limit), Hz.
+    q_predicted : float
+        Best predicted Q (same model as ``f0_hz``).
+    q_predicted_range : tuple of float
+        Q for the viscous end term at the ends of its range (low, high).
+    q_without_radiation : float
+        Q with the radiation term left out (what an outside microphone close
+        to the mouth measures when not corrected).
+    q_lumped, q_distributed : float or None
+        Lumped Q budget total; Q of the 1-D root.
+    q_radiation, q_viscous_neck, q_viscous_cavity, q_thermal_cavity, q_thermal_neck : float
+        Each contribution of the lumped budget (1/Q = sum 1/Q_i).
+    radiation_resistance_pa_s_m3, viscous_resistance_neck_pa_s_m3,
+    viscous_resistance_cavity_pa_s_m3 : float
+        Series resistances, Pa s/m^3.
+    thermal_conductance_cavity_m3_pa_s, thermal_conductance_neck_m3_pa_s : float
+        Shunt conductances, m^3/(Pa s).
+    neck_area_m2, neck_radius_m, neck_length_m : float
+        Total open area, radius of one opening, physical length.
+    cavity_volume_m3, cavity_length_m, wall_area_m2 : float
+        Volume; axial length (None for volume only); wall area (openings
+        subtracted; estimated for volume only).
+    geometric_effective_length_m : float
+        L + outer + inner, m.
+    inner_end_correction_alternative_m : float
+        Ingard's 1953 inner correction, m (spread of the inner end).
+    cavity_inertia_length_m : float
+        Rayleigh's one-third cavity inertia as a length, m.
+    neck_compliance_volume_m3 : float
+        S L'/3, the neck's own compliance as a volume, m^3.
+    boundary_layer_shift_viscous, boundary_layer_shift_thermal : float
+        Relative f0 shifts from the boundary layers, 1.
+    viscous_boundary_layer_m, thermal_boundary_layer_m : float
+        Layer thicknesses at f0, m.
+    viscous_end_term_m : float
+        Viscous end term used per opening, m.
+    ka : float
+        Helmholtz number of one opening at f0, 1.
+    lumped_wave_parameter : float
+        X = k sqrt(L'^2 + Lc^2): the plain lumped f0 runs high by about X^2/6.
+    f0_tolerance : float
+        Suggested relative f0-mismatch tolerance for this kind of prediction
+        (:data:`F0_TOLERANCE_BY_MODEL`), 1.
+    notes : tuple of str
+        What was assumed.
     """
 
     f0_hz: float
@@ -236,38 +490,154 @@ class Prediction:
     inner_end_correction_m: float
     acoustic_mass_kg_m4: float
     compliance_m3_pa: float
+    model: str = "corrected-lumped"
+    kind: str = "helmholtz"
+    f0_lumped_hz: float = math.nan
+    f0_corrected_lumped_hz: float = math.nan
+    f0_distributed_hz: float | None = None
+    modes_hz: tuple[float, ...] = ()
+    modes_q: tuple[float, ...] = ()
+    mode_limit_hz: float | None = None
+    q_predicted: float = math.nan
+    q_predicted_range: tuple[float, float] = (math.nan, math.nan)
+    q_without_radiation: float = math.nan
+    q_lumped: float = math.nan
+    q_distributed: float | None = None
+    q_radiation: float = math.nan
+    q_viscous_neck: float = math.nan
+    q_viscous_cavity: float = math.nan
+    q_thermal_cavity: float = math.nan
+    q_thermal_neck: float = math.nan
+    radiation_resistance_pa_s_m3: float = math.nan
+    viscous_resistance_neck_pa_s_m3: float = math.nan
+    viscous_resistance_cavity_pa_s_m3: float = math.nan
+    thermal_conductance_cavity_m3_pa_s: float = math.nan
+    thermal_conductance_neck_m3_pa_s: float = math.nan
+    neck_area_m2: float = math.nan
+    neck_radius_m: float = math.nan
+    neck_length_m: float = math.nan
+    cavity_volume_m3: float = math.nan
+    cavity_length_m: float | None = None
+    wall_area_m2: float = math.nan
+    geometric_effective_length_m: float = math.nan
+    inner_end_correction_alternative_m: float = math.nan
+    cavity_inertia_length_m: float = 0.0
+    neck_compliance_volume_m3: float = 0.0
+    boundary_layer_shift_viscous: float = 0.0
+    boundary_layer_shift_thermal: float = 0.0
+    viscous_boundary_layer_m: float = math.nan
+    thermal_boundary_layer_m: float = math.nan
+    viscous_end_term_m: float = 0.0
+    ka: float = math.nan
+    lumped_wave_parameter: float | None = None
+    f0_tolerance: float = 0.035
+    notes: tuple[str, ...] = field(default_factory=tuple)
 
-    def to_dict(self) -> dict[str, float]:
-        """Plain floats, JSON-safe."""
-        return {k: float(v) for k, v in asdict(self).items()}
+    def to_dict(self) -> dict[str, Any]:
+        """Plain Python types, JSON-safe (lists for tuples; None where not available)."""
+        out: dict[str, Any] = {}
+        for k, v in asdict(self).items():
+            if isinstance(v, (tuple, list)):
+                out[k] = [x if isinstance(x, str) else float(x) for x in v]
+            elif isinstance(v, str) or v is None:
+                out[k] = v
+            else:
+                out[k] = float(v)
+        return out
 
     def __str__(self) -> str:
         return (
-            f"predicted f0 = {self.f0_hz:.3f} Hz "
-            f"(L_eff = {1e3 * self.effective_neck_length_m:.3f} mm, "
+            f"predicted f0 = {self.f0_hz:.3f} Hz ({self.model}; lumped "
+            f"{self.f0_lumped_hz:.3f} Hz), "
+            f"Q = {self.q_predicted:.1f} (L_eff = {1e3 * self.effective_neck_length_m:.3f} mm, "
             f"end correction {1e3 * self.end_correction_m:.3f} mm)"
         )
 
 
+def _budget(obj: ResonatorObject, air: AirState, f_hz: float, l_mass_m: float,
+            end_term_m: float, sections3: list[tuple[float, float, float]] | None
+            ) -> tuple[QBudget, float, float]:
+    neck = obj.neck
+    rho, c = air.density_kg_m3, air.speed_of_sound_m_s
+    dv = viscous_boundary_layer_m(air.viscosity_pa_s, rho, f_hz)
+    dt = thermal_boundary_layer_m(air.thermal_conductivity_w_mk, rho, air.cp_j_kgk, f_hz)
+    s = neck.area_m2
+    r_rad = radiation_resistance_pa_s_m3(rho, c, f_hz, neck.outer_end)
+    neck_wall_m2 = neck.count * neck.perimeter_m * neck.length_m
+    if obj.kind == "tube":
+        # Quarter-wave mode, referred to the mouth's flow and the closed end's
+        # pressure: modal mass rho L'/(2S) and compliance S L'/(2 rho c^2)
+        # (time-averaged energy of p = P cos kx); wall terms weighted by the
+        # mean of sin^2 and cos^2 along the tube, 1/2 (common practice).
+        mass = rho * l_mass_m / (2.0 * s)
+        compliance = s * l_mass_m / (2.0 * rho * c * c)
+        r_neck = viscous_resistance_pa_s_m3(rho, f_hz, dv, neck.length_m / 2.0 + end_term_m,
+                                            neck.opening_area_m2, neck.perimeter_m)
+        r_cav = 0.0
+        g_cav = thermal_conductance_m3_pa_s(f_hz, air.gamma, dt, neck.opening_area_m2, rho, c)
+        g_neck = thermal_conductance_m3_pa_s(f_hz, air.gamma, dt, neck_wall_m2 / 2.0, rho, c)
+    else:
+        mass = rho * l_mass_m / s
+        compliance = compliance_m3_pa(obj.cavity.volume_m3, rho, c)
+        r_neck = viscous_resistance_pa_s_m3(rho, f_hz, dv, neck.length_m + end_term_m,
+                                            neck.opening_area_m2, neck.perimeter_m, neck.count)
+        r_cav = (cavity_viscous_resistance_pa_s_m3(rho, f_hz, dv, sections3)
+                 if sections3 else 0.0)
+        g_cav = thermal_conductance_m3_pa_s(f_hz, air.gamma, dt, _cavity_wall_m2(obj), rho, c)
+        g_neck = thermal_conductance_m3_pa_s(f_hz, air.gamma, dt, neck_wall_m2, rho, c)
+    budget = QBudget.from_elements(f_hz, mass, compliance, r_rad, r_neck, r_cav, g_cav, g_neck)
+    return budget, dv, dt
+
+
+def _cavity_wall_m2(obj: ResonatorObject) -> float:
+    """Cavity wall in contact with the air (openings subtracted), m^2; for a
+    tube its side wall and closed end."""
+    if obj.kind == "tube":
+        n = obj.neck
+        return n.perimeter_m * n.length_m + n.opening_area_m2
+    return max(obj.cavity.wall_area_m2 - obj.neck.area_m2, 0.0)
+
+
+def _sections(bore: Any) -> list[tuple[float, float, float]] | None:
+    if bore is None or not bore.cavity:
+        return None
+    return [(d.area_m2, d.length_m, d.perimeter_m) for d in bore.cavity]
+
+
 def predict(obj: ResonatorObject, air: AirState) -> Prediction:
-    r"""Lumped Helmholtz prediction of f0 from the geometry and the air.
+    r"""Predict f0, the next modes and Q from the geometry and the air.
 
-    .. math::
+    Steps (each formula's source is in the function it calls):
 
-        L_\text{eff} = L + \delta_\text{outer} + \delta_\text{inner},\qquad
-        f_0 = \frac{c}{2\pi}\sqrt{\frac{S}{V L_\text{eff}}}
-
-    with each :math:`\delta` from :func:`end_correction_m` for the end
-    condition in the object file. No wave (1-D) or boundary-layer
-    corrections are applied.
+    1. End corrections (:func:`neck_end_corrections`), geometric effective
+       length :math:`L' = L + \delta_o + \delta_i` and the plain lumped
+       :math:`f_0 = (c/2\pi)\sqrt{S/(VL')}`.
+    2. Corrected lumped model: Rayleigh's one-third corrections,
+       :math:`L' \to L' + \Delta L_\text{cav}` (cavity inertia, when the
+       cavity's shape is known; not for a sphere, whose 3-D inner end
+       correction already holds the spreading flow) and
+       :math:`V \to V + S L'/3`, then the boundary-layer shift
+       :math:`\Delta f/f \approx -\delta_v P\ell/(4SL_\text{eff}) - (\gamma-1)A_w\delta_t/(4V)`.
+    3. Lumped Q budget at that frequency: radiation, viscous neck (with its
+       end term), viscous cavity walls, thermal cavity and neck walls.
+    4. Distributed 1-D model (:mod:`~characterize.physics.distributed`):
+       complex roots of the lossy bore; f0, Q and the next modes below the
+       first transverse cut-on.
+    5. The best model gives ``f0_hz`` and ``q_predicted``: 1-D for cylinders,
+       boxes, profiles and tubes; for spheres the midpoint of the 1-D model
+       and the corrected lumped one with the 3-D inner correction (the 1-D
+       taper under-represents the 3-D spreading at the hole, the 3-D lumped
+       estimate leaves out the sphere's own inertia; they differ by about
+       2 %); corrected lumped for volume only (no length known, so no cavity
+       inertia: f0 may then run a few % high for a squat cavity; a note says so).
 
     Parameters
     ----------
     obj : ResonatorObject
         Geometry (SI units).
     air : AirState
-        Air properties; uses ``speed_of_sound_m_s`` (m/s) and
-        ``density_kg_m3`` (kg/m^3).
+        Air properties: c (m/s), rho (kg/m^3), mu (Pa s), kappa (W/(m K)),
+        cp (J/(kg K)), gamma.
 
     Returns
     -------
@@ -275,21 +645,156 @@ def predict(obj: ResonatorObject, air: AirState) -> Prediction:
 
     References
     ----------
-    See :func:`end_correction_m` and :func:`helmholtz_f0_hz`.
+    Lord Rayleigh, *The Theory of Sound*, vol. II (1896), sections 302-307;
+    J. Kergomard, A. Garcia, J. Sound Vib. 114(3), 465-479 (1987); D. H. Keefe,
+    J. Acoust. Soc. Am. 75(1), 58-62 (1984); physics sheet sections 2-5.
     """
-    neck = obj.neck
-    outer = end_correction_m(neck.radius_m, neck.outer_end)
-    inner = end_correction_m(neck.radius_m, neck.inner_end)
-    l_eff = neck.length_m + outer + inner
-    c = air.speed_of_sound_m_s
+    from .distributed import find_resonance, resonances, transverse_cutoff_hz
+
+    neck, cav = obj.neck, obj.cavity
+    c, rho = air.speed_of_sound_m_s, air.density_kg_m3
+    _positive(speed_of_sound_m_s=c, density_kg_m3=rho)
+    ends = neck_end_corrections(obj)
+    s, v = neck.area_m2, cav.volume_m3
+    length = neck.length_m
+    l_geo = length + ends.total_m
+    end_term = VISCOUS_END_TERM_OVER_RADIUS * neck.radius_m
+    notes: list[str] = []
+    bore = bore_from_object(obj)
+    sections3 = _sections(bore)
+
+    if obj.kind == "tube":
+        f_lumped = c / (4.0 * l_geo)
+        f_corr0 = f_lumped
+        d_cav = v_neck = 0.0
+        l_mass = l_geo
+        end_term = end_term / 2.0
+    else:
+        f_lumped = helmholtz_f0_hz(c, s, v, l_geo)
+        d_cav = 0.0
+        if sections3 is not None and cav.shape != "sphere":
+            d_cav = cavity_inertia_length_m(s, [(a, ln) for a, ln, _ in sections3])
+        v_neck = s * l_geo / 3.0
+        l_mass = l_geo + d_cav
+        f_corr0 = helmholtz_f0_hz(c, s, v + v_neck, l_mass)
+        if cav.shape == "volume":
+            notes.append("cavity given by volume only: its own inertia is not included "
+                         "(give a shape for that); the wall area is estimated")
+    budget0, dv, dt = _budget(obj, air, f_corr0, l_mass, end_term, sections3)
+    if obj.kind == "tube":
+        shift_v = shift_t = 0.0
+        f_corr = f_corr0
+    else:
+        shift_v, shift_t = boundary_layer_shift(
+            dv, length + end_term, neck.opening_area_m2, neck.perimeter_m, l_mass,
+            air.gamma, dt, _cavity_wall_m2(obj), v)
+        # the layers add mass (1 - 2 shift_v) and compliance (1 - 2 shift_t): exact
+        # in that form, first order equal to f (1 + shift_v + shift_t), and never
+        # negative for narrow necks
+        f_corr = f_corr0 / math.sqrt((1.0 - 2.0 * shift_v) * (1.0 - 2.0 * shift_t))
+    budget, dv, dt = _budget(obj, air, f_corr, l_mass, end_term, sections3)
+    lo_q, hi_q = (
+        _budget(obj, air, f_corr, l_mass, t * neck.radius_m / (2.0 if obj.kind == "tube" else 1.0),
+                sections3)[0].q
+        for t in (VISCOUS_END_TERM_RANGE_OVER_RADIUS[1], VISCOUS_END_TERM_RANGE_OVER_RADIUS[0]))
+
+    f_dist = q_dist = limit = None
+    modes: list[Any] = []
+    if bore is not None:
+        limit = transverse_cutoff_hz(bore, air)
+        guess = f_lumped if obj.kind == "tube" else f_corr
+        try:
+            modes = resonances(bore, air, guess, limit, MAX_MODES)
+        except ArithmeticError:
+            modes = []
+        if not modes:
+            try:
+                modes = [find_resonance(bore, air, guess)]
+            except ArithmeticError:
+                notes.append("the 1-D model found no root near the lumped estimate")
+        if modes:
+            f_dist, q_dist = modes[0].f_hz, modes[0].q
+
+    if obj.kind == "tube" and f_dist is not None:
+        best_f, best_q, model = f_dist, q_dist, "tube-distributed"
+    elif obj.kind == "tube":
+        best_f, best_q, model = f_corr, budget.q, "corrected-lumped"
+    elif f_dist is not None and cav.shape in ("cylinder", "box", "profile"):
+        best_f, best_q, model = f_dist, q_dist, "distributed"
+    elif f_dist is not None and cav.shape == "sphere":
+        # The 1-D taper under-represents the 3-D spreading of the flow at the
+        # hole (its inner inertia vanishes for a small hole in a large sphere,
+        # where the 3-D value tends to 0.82a); the 3-D lumped estimate leaves
+        # out the sphere's own inertia. They bracket the flask: take the midpoint.
+        best_f, best_q, model = 0.5 * (f_dist + f_corr), q_dist, "sphere-midpoint"
+        notes.append(f"sphere: midpoint of the 1-D taper model ({f_dist:.2f} Hz) and the "
+                     f"corrected lumped model with the 3-D inner end correction "
+                     f"({f_corr:.2f} Hz); their spread is the model's uncertainty")
+    else:
+        best_f, best_q, model = f_corr, budget.q, "corrected-lumped"
+    assert best_q is not None
+    scale = best_q / budget.q if budget.q > 0 else 1.0
+    q_range = (lo_q * scale, hi_q * scale)
+    q_norad = (budget.q_without_radiation * scale)
+
+    omega = 2.0 * math.pi * best_f
+    if obj.kind == "tube":
+        l_equiv = c / (4.0 * best_f)
+        x_wave = None
+    else:
+        l_equiv = s * c * c / (omega * omega * v)
+        lc = cav.axial_length_m
+        x_wave = None if lc is None else 2.0 * math.pi * f_lumped / c * math.hypot(l_geo, lc)
     return Prediction(
-        f0_hz=helmholtz_f0_hz(c, neck.area_m2, obj.cavity.volume_m3, l_eff),
-        effective_neck_length_m=l_eff,
-        end_correction_m=outer + inner,
-        outer_end_correction_m=outer,
-        inner_end_correction_m=inner,
-        acoustic_mass_kg_m4=acoustic_mass_kg_m4(air.density_kg_m3, l_eff, neck.area_m2),
-        compliance_m3_pa=compliance_m3_pa(obj.cavity.volume_m3, air.density_kg_m3, c),
+        f0_hz=best_f,
+        effective_neck_length_m=l_equiv,
+        end_correction_m=l_equiv - length,
+        outer_end_correction_m=ends.outer_m,
+        inner_end_correction_m=ends.inner_m,
+        acoustic_mass_kg_m4=acoustic_mass_kg_m4(rho, l_geo, s),
+        compliance_m3_pa=compliance_m3_pa(v, rho, c),
+        model=model,
+        kind=obj.kind,
+        f0_lumped_hz=f_lumped,
+        f0_corrected_lumped_hz=f_corr,
+        f0_distributed_hz=f_dist,
+        modes_hz=tuple(m.f_hz for m in modes),
+        modes_q=tuple(m.q for m in modes),
+        mode_limit_hz=limit,
+        q_predicted=best_q,
+        q_predicted_range=q_range,
+        q_without_radiation=q_norad,
+        q_lumped=budget.q,
+        q_distributed=q_dist,
+        q_radiation=budget.q_radiation,
+        q_viscous_neck=budget.q_viscous_neck,
+        q_viscous_cavity=budget.q_viscous_cavity,
+        q_thermal_cavity=budget.q_thermal_cavity,
+        q_thermal_neck=budget.q_thermal_neck,
+        radiation_resistance_pa_s_m3=budget.radiation_resistance_pa_s_m3,
+        viscous_resistance_neck_pa_s_m3=budget.viscous_resistance_neck_pa_s_m3,
+        viscous_resistance_cavity_pa_s_m3=budget.viscous_resistance_cavity_pa_s_m3,
+        thermal_conductance_cavity_m3_pa_s=budget.thermal_conductance_cavity_m3_pa_s,
+        thermal_conductance_neck_m3_pa_s=budget.thermal_conductance_neck_m3_pa_s,
+        neck_area_m2=s,
+        neck_radius_m=neck.radius_m,
+        neck_length_m=length,
+        cavity_volume_m3=v,
+        cavity_length_m=cav.axial_length_m,
+        wall_area_m2=_cavity_wall_m2(obj),
+        geometric_effective_length_m=l_geo,
+        inner_end_correction_alternative_m=ends.inner_alternative_m,
+        cavity_inertia_length_m=d_cav,
+        neck_compliance_volume_m3=v_neck,
+        boundary_layer_shift_viscous=shift_v,
+        boundary_layer_shift_thermal=shift_t,
+        viscous_boundary_layer_m=dv,
+        thermal_boundary_layer_m=dt,
+        viscous_end_term_m=end_term,
+        ka=omega / c * neck.radius_m,
+        lumped_wave_parameter=x_wave,
+        f0_tolerance=F0_TOLERANCE_BY_MODEL[model],
+        notes=tuple(notes),
     )
 
 
@@ -342,7 +847,15 @@ def derive_from_f0(
 
     (first-order propagation of the f0 standard error only; the errors of
     c, S, V and L are not included). The end correction over the radius is
-    :math:`\delta/a` with standard error :math:`\sigma_\delta/a`.
+    :math:`\delta/a` with standard error :math:`\sigma_\delta/a`. S is the
+    total open area and a the radius of one opening (equal-area radius for a
+    slot). For ``kind = "tube"`` the quarter-wave relation is inverted
+    instead: :math:`L_\text{eff} = c/(4f_0)`, :math:`\sigma_L = L_\text{eff}\sigma_f/f_0`.
+
+    This is the lumped-equivalent length: it holds the cavity's own inertia
+    and the boundary-layer mass as well as the end corrections, which is what
+    a trim calculation with the lumped formula needs; compare it with
+    :attr:`Prediction.effective_neck_length_m`, which has the same meaning.
 
     Parameters
     ----------
@@ -379,8 +892,13 @@ def derive_from_f0(
     neck = obj.neck
     c = air.speed_of_sound_m_s
     _positive(speed_of_sound_m_s=c)
-    l_eff = neck.area_m2 * c**2 / ((2.0 * math.pi * f0_hz) ** 2 * obj.cavity.volume_m3)
-    sigma_l = 2.0 * l_eff * f0_stderr_hz / f0_hz
+    if obj.kind == "tube":
+        # quarter-wave tube: f1 = c / (4 L_eff), so sigma_L = L_eff sigma_f / f0
+        l_eff = c / (4.0 * f0_hz)
+        sigma_l = l_eff * f0_stderr_hz / f0_hz
+    else:
+        l_eff = neck.area_m2 * c**2 / ((2.0 * math.pi * f0_hz) ** 2 * obj.cavity.volume_m3)
+        sigma_l = 2.0 * l_eff * f0_stderr_hz / f0_hz
     delta = l_eff - neck.length_m
     return Derived(
         effective_neck_length_m=l_eff,

@@ -285,7 +285,7 @@ def cavity_viscous_resistance_pa_s_m3(density_kg_m3: float, frequency_hz: float,
     omega = 2.0 * math.pi * frequency_hz
     ints = _volume_integrals([(a, ln) for a, ln, _ in sections])
     return sum(density_kg_m3 * omega * delta_v_m * p / (2.0 * a * a) * i
-               for (a, _, i), (_, _, p) in zip(ints, sections))
+               for (a, _, i), (_, _, p) in zip(ints, sections, strict=False))
 
 
 def boundary_layer_shift(delta_v_m: float, neck_wall_length_m: float, neck_area_m2: float,

@@ -28,6 +28,7 @@ if TYPE_CHECKING:
 
 __all__ = [
     "FLANGED_END_FACTOR",
+    "PISTON_END_FACTOR",
     "UNFLANGED_END_FACTOR",
     "END_FACTORS",
     "STEP_FACTOR_LARGE_CAVITY",
@@ -41,8 +42,13 @@ __all__ = [
     "outside_mic_correction",
 ]
 
-#: End correction / radius of a flanged (baffled) end: 8/(3 pi), Rayleigh 1896.
-FLANGED_END_FACTOR = 8.0 / (3.0 * math.pi)
+#: End correction / radius of a pipe ending in an infinite flange (baffle),
+#: Norris & Sheng 1989 (the pipe's own velocity profile; value from memory,
+#: checked in the tests against openwind's flanged radiation model).
+FLANGED_END_FACTOR = 0.8216
+#: End correction / radius of a rigid piston (uniform velocity) in a baffle,
+#: 8/(3 pi), Rayleigh 1896; used for the shape factor of slots.
+PISTON_END_FACTOR = 8.0 / (3.0 * math.pi)
 #: End correction / radius of an unflanged thin-walled end, Levine & Schwinger 1948.
 UNFLANGED_END_FACTOR = 0.6133
 #: end condition -> end correction / radius
@@ -64,12 +70,14 @@ def end_correction_m(radius_m: float, condition: str) -> float:
 
     .. math::
 
-        \delta_\text{flanged} = \frac{8}{3\pi} a \approx 0.8488\,a, \qquad
+        \delta_\text{flanged} = 0.8216\,a, \qquad
         \delta_\text{unflanged} = 0.6133\,a
 
-    The flanged value is the mass end correction of a rigid piston in an
-    infinite baffle; the unflanged value is the exact low-frequency limit
-    for a thin-walled pipe radiating into free space.
+    The flanged value is the low-frequency limit for a pipe ending in an
+    infinite flange (slightly below the uniform-velocity piston's
+    :math:`8a/(3\pi) = 0.8488a`, :data:`PISTON_END_FACTOR`, because the
+    pipe's velocity profile is not uniform); the unflanged value is the
+    exact low-frequency limit for a thin-walled pipe radiating into free space.
 
     Parameters
     ----------
@@ -91,9 +99,12 @@ def end_correction_m(radius_m: float, condition: str) -> float:
 
     References
     ----------
-    Lord Rayleigh, *The Theory of Sound*, vol. II, 2nd ed. (1896), section 302
-    (section from memory). H. Levine, J. Schwinger, "On the radiation of
-    sound from an unflanged circular pipe", Phys. Rev. 73(4), 383-406 (1948).
+    A. N. Norris, I. C. Sheng, "Acoustic radiation from a circular pipe with
+    an infinite flange", J. Sound Vib. 135(1), 85-93 (1989) (value from
+    memory). H. Levine, J. Schwinger, "On the radiation of sound from an
+    unflanged circular pipe", Phys. Rev. 73(4), 383-406 (1948). Lord
+    Rayleigh, *The Theory of Sound*, vol. II, 2nd ed. (1896), section 302
+    (the piston; section from memory).
     """
     if condition not in END_FACTORS:
         allowed = ", ".join(repr(c) for c in END_FACTORS)

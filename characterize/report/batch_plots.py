@@ -57,13 +57,14 @@ def _edges(values: list[float], lo: float | None, hi: float | None) -> Any:
     if width <= 0:
         width = max(abs(span[0]) * 0.01, 1e-9)
     pad = 0.08 * width
-    n_bins = int(np.clip(2 * np.sqrt(data.size), 6, 40))
+    n_bins = int(np.clip(round(3 * np.sqrt(data.size)), 8, 50))
     return np.linspace(span[0] - pad, span[1] + pad, n_bins + 1)
 
 
 def _histogram(ax: Any, ok: list[float], bad: list[float], lo: float | None, hi: float | None,
                target: float | None, band_label: str) -> None:
     allv = ok + bad
+    ax.set_axisbelow(True)
     edges = _edges(allv, lo, hi)
     x_lo, x_hi = float(edges[0]), float(edges[-1])
     if lo is not None or hi is not None:

@@ -33,7 +33,7 @@ _TEMPLATE = """<!DOCTYPE html>
 <head>
 <meta charset="utf-8">
 <meta name="viewport" content="width=device-width, initial-scale=1">
-<meta http-equiv="Content-Security-Policy" content="{{ csp }}">
+<meta http-equiv="Content-Security-Policy" content="{{ csp|safe }}">
 <meta name="generator" content="characterize {{ version }}">
 <title>Batch report: {{ spec.name }}</title>
 <style>
@@ -69,7 +69,9 @@ tbody th { font-weight: 600; overflow-wrap: anywhere; min-width: 6rem; }
 tr.row-fail, tr.row-error { background: #fbeee9; }
 .reasons { margin: 0; padding-left: 1.1rem; }
 .small { font-size: .85rem; color: var(--muted); }
-table.stats { width: auto; min-width: 20rem; }
+table.stats { width: auto; min-width: 18rem; }
+.cols { display: flex; flex-wrap: wrap; gap: 0 2rem; align-items: flex-start; }
+.cols > div { flex: 1 1 18rem; }
 table.stats td { text-align: right; font-variant-numeric: tabular-nums; }
 figure { margin: 1rem 0; }
 figure img, article img { max-width: 100%; height: auto; display: block;
@@ -126,6 +128,7 @@ result.</p>
 
 <section id="summary" aria-labelledby="summary-h">
 <h2 id="summary-h">Summary</h2>
+<div class="cols">
 <table class="stats">
 <caption>Batch statistics over the {{ counts.n_analyzed }} items with a result</caption>
 <thead><tr><th scope="col">quantity</th><th scope="col">value</th></tr></thead>
@@ -133,10 +136,7 @@ result.</p>
 {% for label, value in stats_rows %}<tr><th scope="row">{{ label }}</th><td>{{ value }}</td></tr>
 {% endfor %}</tbody>
 </table>
-<p class="small">Cpk = min(USL − mean, mean − LSL) / (3 s) against the f0 tolerance, with the
-sample standard deviation s (common practice in quality engineering; Kane 1986). Control
-limits: individuals chart, σ from the mean moving range / 1.128 (Montgomery 2009).
-Outliers: modified z-score beyond {{ outlier_z }} (Iglewicz &amp; Hoaglin 1993).</p>
+<div>
 {% if outliers %}
 <table class="stats" id="outliers-table">
 <caption>Outliers</caption>
@@ -148,6 +148,12 @@ Outliers: modified z-score beyond {{ outlier_z }} (Iglewicz &amp; Hoaglin 1993).
 {% endfor %}</tbody>
 </table>
 {% else %}<p>No outliers.</p>{% endif %}
+<p class="small">Cpk = min(USL − mean, mean − LSL) / (3 s) against the f0 tolerance, with the
+sample standard deviation s (common practice in quality engineering; Kane 1986). Control
+limits: individuals chart, σ from the mean moving range / 1.128 (Montgomery 2009).
+Outliers: modified z-score beyond {{ outlier_z }} (Iglewicz &amp; Hoaglin 1993).</p>
+</div>
+</div>
 </section>
 
 <section id="items" aria-labelledby="items-h">
@@ -169,8 +175,10 @@ spec ({{ band }} for f0)</caption>
 <td><span class="status status-{{ it.status }}">{{ it.status_text }}</span></td>
 <td class="num">{{ it.f0 }}</td><td class="num">{{ it.dev }}</td><td class="num">{{ it.q }}</td>
 <td class="num">{{ it.mismatch }}</td>
-<td>{% if it.reasons %}<ul class="reasons">{% for r in it.reasons %}<li>{{ r }}</li>{% endfor %}</ul>{% endif %}
-{% if it.warnings %}<span class="small">warnings: {{ it.warnings|join("; ") }}</span>{% endif %}
+<td>{% if it.reasons %}<ul class="reasons">
+{% for r in it.reasons %}<li>{{ r }}</li>{% endfor %}</ul>{% endif %}
+{% if it.warnings %}<span class="small">warnings: {{ it.warnings|join("; ") }}</span>
+{% endif %}
 {% if it.outlier %}<span class="small">outlier in {{ it.outlier }}</span>{% endif %}</td>
 <td class="small">{{ it.recording }}</td><td>{{ it.note }}</td>
 </tr>
@@ -182,7 +190,8 @@ spec ({{ band }} for f0)</caption>
 <section id="spread" aria-labelledby="spread-h">
 <h2 id="spread-h">Spread</h2>
 {% for fig in figures %}<figure>
-<img src="data:image/png;base64,{{ fig.data }}" alt="{{ fig.alt }}" width="{{ fig.width }}" height="{{ fig.height }}">
+<img src="data:image/png;base64,{{ fig.data }}" alt="{{ fig.alt }}"
+ width="{{ fig.width }}" height="{{ fig.height }}">
 <figcaption>{{ fig.caption }}</figcaption>
 </figure>
 {% endfor %}
@@ -193,12 +202,15 @@ spec ({{ band }} for f0)</caption>
 {% for it in items %}<article id="item-{{ it.index }}" aria-labelledby="item-h-{{ it.index }}">
 <h3 id="item-h-{{ it.index }}">{{ it.index }}. {{ it.id }} —
 <span class="status status-{{ it.status }}">{{ it.status_text }}</span></h3>
-<p>{% if it.status != "error" %}f0 {{ it.f0 }} ± {{ it.f0_se }} Hz, Q {{ it.q }} ± {{ it.q_se }}{% if it.pred %},
-predicted f0 {{ it.pred }} Hz ({{ it.mismatch }} %){% endif %}; {% endif %}recording
+<p>{% if it.status != "error" %}f0 {{ it.f0 }} ± {{ it.f0_se }} Hz,
+Q {{ it.q }} ± {{ it.q_se }}{% if it.pred %}, predicted f0 {{ it.pred }} Hz
+({{ it.mismatch }} %){% endif %}; {% endif %}recording
 <span class="small">{{ it.recording }}</span>{% if it.note %}; note: {{ it.note }}{% endif %}</p>
-{% if it.reasons %}<ul class="reasons">{% for r in it.reasons %}<li>{{ r }}</li>{% endfor %}</ul>{% endif %}
+{% if it.reasons %}<ul class="reasons">
+{% for r in it.reasons %}<li>{{ r }}</li>{% endfor %}</ul>{% endif %}
 {% if it.warnings %}<p class="small">warnings: {{ it.warnings|join("; ") }}</p>{% endif %}
-{% if it.img %}<img src="data:image/png;base64,{{ it.img }}" alt="{{ it.alt }}" loading="lazy" width="{{ it.img_w }}" height="{{ it.img_h }}">
+{% if it.img %}<img src="data:image/png;base64,{{ it.img }}" alt="{{ it.alt }}"
+ width="{{ it.img_w }}" height="{{ it.img_h }}">
 {% elif it.status != "error" %}<p class="small">No response plot for this item.</p>{% endif %}
 </article>
 {% endfor %}

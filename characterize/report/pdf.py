@@ -156,10 +156,10 @@ def _cover(pages: _Pages, ctx: dict[str, Any]) -> None:
     plt.close(fig)
 
 
-_COLUMNS = (("#", 0.06, "right", 4), ("id", 0.075, "left", 22), ("status", 0.275, "left", 6),
-            ("f0 (Hz)", 0.415, "right", 10), ("dev (%)", 0.485, "right", 8),
-            ("Q", 0.545, "right", 7), ("vs pred (%)", 0.63, "right", 8),
-            ("why (first reason)", 0.645, "left", 54))
+_COLUMNS = (("#", 0.065, "right", 4), ("id", 0.08, "left", 24), ("status", 0.255, "left", 6),
+            ("f0 (Hz)", 0.385, "right", 10), ("dev (%)", 0.455, "right", 8),
+            ("Q", 0.51, "right", 7), ("vs pred (%)", 0.61, "right", 8),
+            ("why (first reason)", 0.63, "left", 50))
 
 
 def _table_pages(pages: _Pages, ctx: dict[str, Any]) -> None:
@@ -190,8 +190,8 @@ def _table_pages(pages: _Pages, ctx: dict[str, Any]) -> None:
                 why = f"(+{len(it['reasons']) - 1}) " + why
             cells = (str(it["index"]), it["id"], _STATUS[it["status"]], it["f0"], it["dev"],
                      it["q"], it["mismatch"], why)
-            for (_, x, ha, width), text in zip(_COLUMNS, cells):
-                bold = "bold" if it["status"] != "pass" and width == 6 else "normal"
+            for (head, x, ha, width), text in zip(_COLUMNS, cells, strict=True):
+                bold = "bold" if it["status"] != "pass" and head == "status" else "normal"
                 fig.text(x, y, _clip(text, width), fontsize=7.5, ha=ha, va="top",
                          weight=bold, parse_math=False)
             y -= 0.0245

@@ -98,7 +98,7 @@ def levels_plot(study: LevelStudy, path: str | Path) -> Path:
                      study.onset_spl_db + study.onset_spl_stderr_db, color=PALETTE["band"],
                      alpha=0.7, lw=0)
         ax_q.axvline(study.onset_spl_db, color=PALETTE["prediction"], ls="--", lw=1.1,
-                     label=f"onset {study.onset_spl_db:.1f} ± {study.onset_spl_stderr_db:.1f} dB")
+                     label=f"onset {study.onset_spl_db:.2f} ± {study.onset_spl_stderr_db:.2f} dB")
     ax_q.errorbar(spl, q, yerr=sq, fmt="o", ms=4, color=PALETTE["ink"], capsize=2,
                   label="measured")
     ax_q.set_ylabel("Q (1)")
@@ -114,7 +114,7 @@ def levels_plot(study: LevelStudy, path: str | Path) -> Path:
 def power_law_plot(fit: PowerLawFit, path: str | Path) -> Path:
     """Force against RMS cavity pressure on log axes, with the fitted power law and
     a square law through the same middle point for comparison."""
-    from ..tuning import spl_to_pressure_pa
+    from ..tuning import pressure_to_spl_db, spl_to_pressure_pa
 
     p = spl_to_pressure_pa(np.array(fit.spl_db))
     force = np.array(fit.force_n)
@@ -135,6 +135,9 @@ def power_law_plot(fit: PowerLawFit, path: str | Path) -> Path:
     ax.set_xscale("log")
     ax.set_yscale("log")
     ax.set_xlabel("cavity pressure, rms (Pa)")
+    top = ax.secondary_xaxis("top", functions=(pressure_to_spl_db, spl_to_pressure_pa))
+    top.set_xlabel("cavity SPL (dB re 20 µPa)", fontsize=8, color=PALETTE["muted"])
+    top.tick_params(colors=PALETTE["muted"], labelsize=8)
     ax.set_ylabel("steady force (N)")
     ax.legend(fontsize=7, frameon=False, loc="upper left")
     _title(ax, "steady force against drive level")

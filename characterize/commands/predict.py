@@ -1,0 +1,224 @@
+"""``characterize predict OBJECT.toml``: what the geometry predicts.
+
+Prints f0, the next modes, the predicted Q and every intermediate figure
+(air, areas, volumes, each end correction, effective length, acoustic mass,
+compliance, each resistance), with units; ``--json`` prints the document,
+``--out`` writes it, ``--sketch`` draws the object.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import click
+
+from ._errors import handles_errors
+
+PREDICTION_SCHEMA = "characterize.prediction/1"
+
+
+class _Fraction(click.ParamType):
+    """A fraction 0..1 or an explicit percent ("45 %")."""
+
+    name = "FRACTION"
+
+    def convert(self, value: Any, param: Any, ctx: Any) -> float:
+        from ..errors import InputError
+        from ..units import parse_fraction
+
+        if isinstance(value, float):
+            return value
+        try:
+            return parse_fraction(value, "option", f"--{param.name}" if param else "value")
+        except InputError as exc:
+            self.fail(exc.expected, param, ctx)
+
+
+class _Pressure(click.ParamType):
+    """A pressure with a unit ("101.3 kPa") or a bare number in Pa."""
+
+    name = "PRESSURE"
+
+    def convert(self, value: Any, param: Any, ctx: Any) -> float:
+        from ..errors import InputError
+        from ..units import parse_quantity
+
+        if isinstance(value, float):
+            return value
+        try:
+            return float(value)
+        except ValueError:
+            pass
+        try:
+            return parse_quantity(value, "pressure", "option", "--pressure")
+        except InputError as exc:
+            self.fail(exc.expected, param, ctx)
+
+
+class _Co2(click.ParamType):
+    """CO2 as a fraction, a percent or ppm ("400 ppm")."""
+
+    name = "CO2"
+
+    def convert(self, value: Any, param: Any, ctx: Any) -> float:
+        from ..errors import InputError
+        from ..physics.geometry import parse_co2
+
+        if isinstance(value, float):
+            return value
+        try:
+            return parse_co2(value, "option", "--co2")
+        except InputError as exc:
+            self.fail(exc.expected, param, ctx)
+
+
+def resolve_air(obj: Any, **cli: float | None) -> tuple[Any, dict[str, str]]:
+    """Air from the defaults (20 degC, 50 % RH, 101.325 kPa, 400 ppm CO2),
+    then the object file's [air], then the command line."""
+    from ..errors import InputError
+    from ..physics.air import air_state
+
+    values = {"temperature_c": 20.0, "relative_humidity": 0.5, "pressure_pa": 101325.0,
+              "co2_fraction": 0.0004}
+    sources = {k: "default" for k in values}
+    for k, v in obj.air.to_dict().items():
+        if v is not None:
+            values[k], sources[k] = float(v), "object file"
+    for k, v in cli.items():
+        if v is not None:
+            values[k], sources[k] = float(v), "command line"
+    try:
+        return air_state(**values), sources
+    except ValueError as exc:
+        raise InputError("air", None, str(exc)) from None
+
+
+def prediction_document(obj: Any, air: Any, sources: dict[str, str], pred: Any) -> dict[str, Any]:
+    """The ``predict --json`` document."""
+    from .. import __version__
+
+    air_d = air.to_dict()
+    air_d["sources"] = dict(sources)
+    return {"schema": PREDICTION_SCHEMA, "tool_version": __version__, "object": obj.to_dict(),
+            "air": air_d, "prediction": pred.to_dict()}
+
+
+def _mm(x: float | None) -> str:
+    return "-" if x is None else f"{1e3 * x:.3f} mm"
+
+
+def prediction_text(obj: Any, air: Any, sources: dict[str, str], pred: Any) -> str:
+    """Human-readable report, units on every figure."""
+    cav, neck = obj.cavity, obj.neck
+    names = {"temperature_c": "temperature", "relative_humidity": "humidity",
+             "pressure_pa": "pressure", "co2_fraction": "CO2"}
+    src = ", ".join(f"{names.get(k, k)}: {v}" for k, v in sources.items() if v != "default")
+    lines = [
+        f"{obj.name}: {obj.kind}" + (f", cavity {cav.shape}" if obj.kind == "helmholtz" else ""),
+        f"  air       {air.temperature_c:.2f} °C, RH {100 * air.relative_humidity:.1f} %, "
+        f"{air.pressure_pa / 1e3:.3f} kPa, CO2 {1e6 * air.co2_fraction:.0f} ppm"
+        + (f" (from {src})" if src else " (defaults)"),
+        f"            c = {air.speed_of_sound_m_s:.3f} m/s, rho = {air.density_kg_m3:.5f} kg/m³, "
+        f"mu = {air.viscosity_pa_s:.4e} Pa·s, gamma = {air.gamma:.5f}, Pr = {air.prandtl:.4f}",
+        f"  cavity    V = {1e6 * cav.volume_m3:.3f} mL ({cav.volume_source}), axial length "
+        f"{_mm(cav.axial_length_m)}, wall area {1e4 * pred.wall_area_m2:.2f} cm²",
+        f"  neck      {neck.shape}, {neck.count} x d = {_mm(neck.diameter_m)}"
+        + (f" ({_mm(neck.width_m)} x {_mm(neck.height_m)})" if neck.shape == "slot" else "")
+        + f", L = {_mm(neck.length_m)}, S = {1e6 * pred.neck_area_m2:.3f} mm² total",
+        f"  ends      outer ({neck.outer_end}) {_mm(pred.outer_end_correction_m)}, inner "
+        f"({neck.inner_end}) {_mm(pred.inner_end_correction_m)} "
+        f"[Ingard 1953 form: {_mm(pred.inner_end_correction_alternative_m)}]",
+        f"  lengths   L' = L + ends = {_mm(pred.geometric_effective_length_m)}; cavity inertia "
+        f"+{_mm(pred.cavity_inertia_length_m)}; neck compliance "
+        f"{1e6 * pred.neck_compliance_volume_m3:.3f} mL",
+        f"  elements  M = {pred.acoustic_mass_kg_m4:.3f} kg/m⁴, C = "
+        f"{pred.compliance_m3_pa:.4e} m³/Pa",
+        f"  layers    delta_v = {_mm(pred.viscous_boundary_layer_m)}, delta_t = "
+        f"{_mm(pred.thermal_boundary_layer_m)}; f0 shift "
+        f"{100 * pred.boundary_layer_shift_viscous:+.3f} % (viscous), "
+        f"{100 * pred.boundary_layer_shift_thermal:+.3f} % (thermal)",
+        "  f0        lumped {:.3f} Hz, corrected lumped {:.3f} Hz, distributed {} "
+        "-> {:.3f} Hz ({})".format(
+            pred.f0_lumped_hz, pred.f0_corrected_lumped_hz,
+            "-" if pred.f0_distributed_hz is None else f"{pred.f0_distributed_hz:.3f} Hz",
+            pred.f0_hz, pred.model),
+        f"            lumped-equivalent L_eff = {_mm(pred.effective_neck_length_m)}, end "
+        f"correction {_mm(pred.end_correction_m)} = "
+        f"{pred.end_correction_m / neck.radius_m:.3f} a; ka = {pred.ka:.4f}",
+    ]
+    if pred.modes_hz:
+        pairs = zip(pred.modes_hz, pred.modes_q, strict=True)
+        modes = ", ".join(f"{f:.1f} Hz (Q {q:.0f})" for f, q in pairs)
+        limit = ("" if pred.mode_limit_hz is None
+                 else f" (1-D valid below {pred.mode_limit_hz:.0f} Hz)")
+        lines.append(f"  modes     {modes}{limit}")
+    lines += [
+        f"  Q         {pred.q_predicted:.2f} (viscous end term 0.5a..2a: "
+        f"{pred.q_predicted_range[1]:.1f} to {pred.q_predicted_range[0]:.1f}); "
+        f"without radiation {pred.q_without_radiation:.2f}",
+        f"            radiation {pred.q_radiation:.1f}, viscous neck {pred.q_viscous_neck:.1f}, "
+        f"viscous cavity {pred.q_viscous_cavity:.0f}, thermal cavity "
+        f"{pred.q_thermal_cavity:.1f}, thermal neck {pred.q_thermal_neck:.0f}",
+        f"  R, G      R_rad = {pred.radiation_resistance_pa_s_m3:.4g}, R_neck = "
+        f"{pred.viscous_resistance_neck_pa_s_m3:.4g}, R_cavity = "
+        f"{pred.viscous_resistance_cavity_pa_s_m3:.4g} Pa·s/m³; G_cavity = "
+        f"{pred.thermal_conductance_cavity_m3_pa_s:.4g}, G_neck = "
+        f"{pred.thermal_conductance_neck_m3_pa_s:.4g} m³/(Pa·s)",
+        f"  mismatch  suggested f0 tolerance {100 * pred.f0_tolerance:.1f} %",
+    ]
+    lines += [f"  note      {n}" for n in pred.notes]
+    return "\n".join(lines)
+
+
+@click.command()
+@click.argument("object_path", metavar="OBJECT", type=click.Path(path_type=Path))
+@click.option("--temperature", "temperature_c", type=float, default=None,
+              help="Air temperature (°C); overrides the object file.")
+@click.option("--humidity", "relative_humidity", type=_Fraction(), default=None,
+              help="Relative humidity, 0..1 or '45 %'; overrides the object file.")
+@click.option("--pressure", "pressure_pa", type=_Pressure(), default=None,
+              help="Static pressure ('101.3 kPa' or Pa); overrides the object file.")
+@click.option("--co2", "co2_fraction", type=_Co2(), default=None,
+              help="CO2 ('400 ppm', '0.04 %' or a fraction); overrides the object file.")
+@click.option("--json", "as_json", is_flag=True, help="Print the prediction document (JSON).")
+@click.option("--out", "out_path", type=click.Path(dir_okay=False, path_type=Path),
+              help="Write the prediction document (JSON) to this file.")
+@click.option("--sketch", "sketch_path", type=click.Path(dir_okay=False, path_type=Path),
+              help="Draw the object with its dimensions and end corrections (PNG).")
+@click.option("--force", is_flag=True, help="Overwrite --out and --sketch files.")
+@handles_errors
+def predict(object_path: Path, temperature_c: float | None, relative_humidity: float | None,
+            pressure_pa: float | None, co2_fraction: float | None, as_json: bool,
+            out_path: Path | None, sketch_path: Path | None, force: bool) -> None:
+    """Predict f0, the next modes and Q of the resonator in OBJECT (TOML)."""
+    from ..fileio import check_writable
+    from ..physics.geometry import load_object
+    from ..physics.helmholtz import predict as predict_object
+
+    for p in (out_path, sketch_path):
+        if p is not None:
+            check_writable(p, force=force)
+    obj = load_object(object_path)
+    air, sources = resolve_air(obj, temperature_c=temperature_c,
+                               relative_humidity=relative_humidity, pressure_pa=pressure_pa,
+                               co2_fraction=co2_fraction)
+    pred = predict_object(obj, air)
+    doc = prediction_document(obj, air, sources, pred)
+    if out_path is not None or as_json:
+        from ..report.document import to_json, write_document
+
+        if out_path is not None:
+            write_document(out_path, doc)
+        if as_json:
+            click.echo(to_json(doc), nl=False)
+    if not as_json:
+        click.echo(prediction_text(obj, air, sources, pred))
+    if sketch_path is not None:
+        from ..physics.sketch import sketch_object
+
+        sketch_object(obj, sketch_path, pred)
+    if not as_json:
+        for p in (out_path, sketch_path):
+            if p is not None:
+                click.echo(f"wrote {p}")
