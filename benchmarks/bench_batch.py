@@ -100,7 +100,9 @@ def main() -> None:
         reports = sum(report_times.values())
         sizes = {n: (tmp / "out" / n).stat().st_size / 1e6 for n in B.REPORT_FILES}
     finally:
-        if not opts.keep:
+        if opts.keep:
+            print(f"kept {tmp}")  # noqa: T201
+        else:
             shutil.rmtree(tmp, ignore_errors=True)
 
     st = summary.stats

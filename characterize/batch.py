@@ -199,6 +199,8 @@ def known_flag_codes() -> frozenset[str]:
             codes.update(pat.findall(p.read_text(encoding="utf-8")))
         except OSError:
             continue
+    if codes:
+        codes.add("plot-failed")  # raised here, when an item's response plot cannot be drawn
     return frozenset(codes)
 
 
@@ -894,7 +896,7 @@ def outcome(item: ManifestItem, doc: dict[str, Any], spec: Spec) -> ItemOutcome:
                   plot=f"items/{plot}" if plot else None)
     if v.status == "error":
         return ItemOutcome(**common)  # type: ignore[arg-type]
-    fit = doc["fit"]
+    fit = doc.get("fit") or {}
     pred = doc.get("prediction") or {}
     return ItemOutcome(
         **common,  # type: ignore[arg-type]

@@ -211,6 +211,17 @@ def check_multiple_peaks(fit: FitResult, peaks: list[tuple[float, float]]) -> li
                  f"are real modes, fit them together (--modes {min(6, 1 + len(others))})")]
 
 
+def check_drive(drive: dict[str, Any]) -> list[Flag]:
+    """Nonlinear neck flow from the calibrated drive level (physics.nonlinear)."""
+    if not drive.get("nonlinear"):
+        return []
+    return [Flag("nonlinear-drive", "warning",
+                 f"at {drive['cavity_spl_db']:.1f} dB SPL in the cavity the air in the neck "
+                 f"moves {1000 * drive['displacement_m']:.2f} mm, "
+                 f"{drive['displacement_over_diameter']:.2f} of the neck diameter: the flow "
+                 "is nonlinear, so the fitted Q depends on the level; measure 10 dB lower")]
+
+
 def worst_severity(flags: list[Flag]) -> str | None:
     if not flags:
         return None

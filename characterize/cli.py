@@ -164,7 +164,14 @@ def sweep(out: Path, force: bool, **kw: Any) -> None:
 @click.option("--pressure", "pressure_pa", type=Quantity("pressure"), default=None,
               help="Static pressure ('101.3 kPa' or Pa); overrides the object file.")
 @click.option("--tolerance", type=float, default=None,
-              help="f0 mismatch that raises a warning, as a fraction [default: 0.05].")
+              help="f0 mismatch that raises a warning, as a fraction [default: what the "
+                   "geometry model promises for the shape, 0.02 to 0.035].")
+@click.option("--outside-distance", "outside_distance_m", type=Quantity("length"),
+              default=None, help="Distance of the outside microphone from the mouth "
+              "('50 mm'): correct H for the mouth's own radiation reaching it.")
+@click.option("--calibration", "calibration_path", type=click.Path(path_type=Path),
+              default=None, help="Calibration file from 'characterize calibrate': channel "
+              "gain/phase match and the inside level (cavity SPL, neck motion).")
 @click.option("--window", "window_ms", type=float, default=None,
               help="Impulse-response window (ms) on the sweep path; default automatic.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False, path_type=Path),
@@ -178,6 +185,7 @@ def fit(recording: Path | None, object_path: Path | None, sweep_path: Path | Non
         modes: int | None, inside: int,
         outside: int, band: tuple[float, float] | None, temperature_c: float | None,
         relative_humidity: float | None, pressure_pa: float | None, tolerance: float | None,
+        outside_distance_m: float | None, calibration_path: Path | None,
         window_ms: float | None, out_dir: Path | None, as_json: bool, strict: bool,
         force: bool) -> None:
     """Fit f0, Q, gain and delay to a RECORDING (or a measured --transfer CSV).
@@ -186,7 +194,6 @@ def fit(recording: Path | None, object_path: Path | None, sweep_path: Path | Non
     that was played, or with any broadband signal (H1); the inside microphone
     alone with the excitation file, or with taps and pops (ringdown).
     """
-    from .checks import F0_TOLERANCE
     from .fileio import check_writable
 
     targets = []
@@ -205,7 +212,8 @@ def fit(recording: Path | None, object_path: Path | None, sweep_path: Path | Non
                      method=method, modes=modes, inside=inside,
                      outside=outside, band_hz=band, temperature_c=temperature_c,
                      relative_humidity=relative_humidity, pressure_pa=pressure_pa,
-                     tolerance=F0_TOLERANCE if tolerance is None else tolerance,
+                     tolerance=tolerance, outside_distance_m=outside_distance_m,
+                     calibration_path=calibration_path,
                      window_s=None if window_ms is None else window_ms / 1000.0)
     doc = result.to_dict()
     written = []

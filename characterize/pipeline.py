@@ -22,7 +22,7 @@ Ways of recording (``method``; ``auto`` picks from what is given):
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -34,6 +34,7 @@ from .checks import (
     F0_TOLERANCE,
     Flag,
     check_clipping,
+    check_drive,
     check_end_correction,
     check_f0_mismatch,
     check_fit_quality,
@@ -112,6 +113,8 @@ class Result:
     background: list[list[float]] | None = None
     signal: np.ndarray | None = None  # the ringdown channel (plots only)
     modes_fit: Any = None  # fitting.modes.ModesFit when several modes or a background
+    outside_mic: dict[str, Any] | None = None
+    drive: dict[str, Any] | None = None
 
     def model(self, freqs_hz: np.ndarray) -> np.ndarray:
         """The fitted model of H (all modes and the background) at ``freqs_hz``."""
@@ -147,6 +150,8 @@ class Result:
                 "averages": tf.averages,
             },
             "quality": self.quality,
+            "outside_microphone": self.outside_mic,
+            "drive": self.drive,
             "checks": {"f0_tolerance": self.tolerance,
                        "plausible_end_correction_over_radius":
                            list(PLAUSIBLE_END_CORRECTION_OVER_RADIUS)},
@@ -221,7 +226,9 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
             outside: int = 2, band_hz: tuple[float, float] | None = None,
             modes: int | None = None, temperature_c: float | None = None,
             relative_humidity: float | None = None, pressure_pa: float | None = None,
-            tolerance: float = F0_TOLERANCE, window_s: float | None = None) -> Result:
+            tolerance: float | None = None, window_s: float | None = None,
+            outside_distance_m: float | None = None,
+            calibration_path: str | Path | None = None) -> Result:
     """Fit one recording (or a measured transfer function) and check it against
     its geometry.
 
@@ -247,10 +254,18 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
         Fit this many resonances together (default 1).
     temperature_c, relative_humidity, pressure_pa : float, optional
         Air overrides (command line beats the object file beats the defaults).
-    tolerance : float
-        Relative f0 mismatch that raises ``f0-mismatch``.
+    tolerance : float, optional
+        Relative f0 mismatch that raises ``f0-mismatch``; default: what the
+        geometry model can promise for this shape (``prediction.f0_tolerance``).
     window_s : float, optional
         Impulse-response window length (s) on the sweep paths; default automatic.
+    outside_distance_m : float, optional
+        Distance of the outside microphone from the mouth: H is corrected for
+        the mouth's own radiation reaching it, and the fit redone.
+    calibration_path : path, optional
+        Calibration file (``characterize calibrate``): the relative gain and
+        phase of the two channels are removed from H, and with the inside
+        channel's sensitivity the drive level (cavity SPL, neck motion) is reported.
 
     Raises
     ------
@@ -259,7 +274,7 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
     FitError
         Readable data but no fit (exit status 1).
     """
-    if not (0 < tolerance < 1):
+    if tolerance is not None and not (0 < tolerance < 1):
         raise InputError("--tolerance", None, f"must be a fraction between 0 and 1, got {tolerance}")
     if modes is not None and (modes < 1 or modes > 6):
         raise InputError("--modes", None, f"must be 1 to 6, got {modes}")
@@ -278,6 +293,14 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
                            sweep_path is not None, excitation_path is not None,
                            transfer_path is not None)
     obj = load_object(object_path) if object_path is not None else None
+    cal = None
+    if calibration_path is not None:
+        from .calibration import read_calibration
+
+        cal = read_calibration(calibration_path)
+    if outside_distance_m is not None and obj is None:
+        raise InputError("--outside-distance", None, "needs --object (the cavity volume and "
+                         "the mouth's baffle condition set the correction)")
     air, sources = resolve_air(obj, temperature_c=temperature_c,
                                relative_humidity=relative_humidity, pressure_pa=pressure_pa)
     if rec is not None and band_hz is not None and band_hz[1] > rec.sample_rate_hz / 2:
@@ -353,6 +376,11 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
                              f"the data ({f[1]:.3g} to {f[-1]:.6g} Hz)")
 
     one_mic = chosen == "one-channel"
+    if outside_distance_m is not None and not two_mic:
+        raise InputError("--outside-distance", None, "applies to the two-microphone methods "
+                         "(sweep, h1, h2) only")
+    if cal is not None and cal.relative is not None and two_mic:
+        tf = replace(tf, h=tf.h / cal.relative.correction(tf.freqs_hz, inside, outside))
     n_modes = modes or 1
     background = None
     mf = None
@@ -370,6 +398,27 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
         mode_list = [{"f0_hz": fit.f0_hz, "f0_stderr_hz": fit.f0_stderr_hz, "q": fit.q,
                       "q_stderr": fit.q_stderr, "gain": fit.gain,
                       "gain_stderr": fit.gain_stderr}]
+    outside_mic: dict[str, Any] = {
+        "distance_m": None, "correction_applied": False,
+        "note": "the outside microphone also hears the mouth's own radiation, which raises "
+                "the measured f0 slightly and leaves the radiation damping out of Q; give "
+                "--outside-distance to correct, or compare Q with prediction.q_without_radiation"}
+    if outside_distance_m is not None and two_mic and n_modes == 1:
+        from .physics.radiation import outside_mic_correction
+
+        assert obj is not None
+        raw = fit
+        h_c = outside_mic_correction(tf.freqs_hz, tf.h, outside_distance_m, None, obj, air,
+                                     gain=-raw.gain if raw.polarity_inverted else raw.gain,
+                                     delay_s=raw.delay_s)
+        tf = replace(tf, h=h_c)
+        fit = fit_transfer(tf, band_hz)
+        mode_list = [{"f0_hz": fit.f0_hz, "f0_stderr_hz": fit.f0_stderr_hz, "q": fit.q,
+                      "q_stderr": fit.q_stderr, "gain": fit.gain,
+                      "gain_stderr": fit.gain_stderr}]
+        outside_mic = {"distance_m": outside_distance_m, "correction_applied": True,
+                       "uncorrected": {"f0_hz": raw.f0_hz, "f0_stderr_hz": raw.f0_stderr_hz,
+                                       "q": raw.q, "q_stderr": raw.q_stderr}}
     circle = None
     if not one_mic:
         from .fitting.circle import circle_fit
@@ -394,7 +443,10 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
         from .fitting.modes import find_resonances
 
         flags += check_multiple_peaks(fit, find_resonances(tf, fit.band_hz))
-    prediction, derived = _geometry(obj, air, fit, flags, tolerance)
+    prediction, derived, used_tol = _geometry(obj, air, fit, flags, tolerance)
+    drive = None
+    if cal is not None and rec is not None:
+        drive = _drive(rec, inside, cal, fit, obj, air, flags)
     info = InputInfo(
         recording=str(recording if recording is not None else transfer_path),
         sample_rate_hz=None if rec is None else rec.sample_rate_hz,
@@ -405,26 +457,58 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
         excitation=None if excitation_path is None else str(excitation_path),
         duration_s=None if rec is None else rec.duration_s,
         subtype=None if rec is None else rec.subtype)
-    return Result(info, air, sources, fit, tf, prediction, derived, obj, flags, tolerance,
+    return Result(info, air, sources, fit, tf, prediction, derived, obj, flags, used_tol,
                   modes=mode_list, circle=None if circle is None else circle.to_dict(),
-                  quality=quality, background=background, modes_fit=mf)
+                  quality=quality, background=background, modes_fit=mf,
+                  outside_mic=outside_mic if two_mic else None, drive=drive)
 
 
 def _as_method(tf: TransferFunction, method: str) -> TransferFunction:
-    from dataclasses import replace
-
     return replace(tf, method=method)
 
 
 def _geometry(obj: ResonatorObject | None, air: AirState, fit: FitResult, flags: list[Flag],
-              tolerance: float) -> tuple[Prediction | None, Derived | None]:
+              tolerance: float | None) -> tuple[Prediction | None, Derived | None, float]:
     if obj is None:
-        return None, None
+        return None, None, F0_TOLERANCE if tolerance is None else tolerance
     prediction = predict(obj, air)
     derived = derive_from_f0(fit.f0_hz, fit.f0_stderr_hz, obj, air)
-    flags += check_f0_mismatch(fit, prediction, tolerance)
-    flags += check_end_correction(derived, PLAUSIBLE_END_CORRECTION_OVER_RADIUS)
-    return prediction, derived
+    tol = tolerance if tolerance is not None else float(
+        getattr(prediction, "f0_tolerance", F0_TOLERANCE))
+    flags += check_f0_mismatch(fit, prediction, tol)
+    if obj.kind == "helmholtz":
+        flags += check_end_correction(derived, PLAUSIBLE_END_CORRECTION_OVER_RADIUS)
+    return prediction, derived, tol
+
+
+def _drive(rec: Recording, inside: int, cal: Any, fit: FitResult,
+           obj: ResonatorObject | None, air: AirState, flags: list[Flag]) -> dict[str, Any]:
+    """Drive level from a calibrated inside channel: the pressure amplitude of the
+    inside signal in the resonance band (its peak for a sweep or a decay), and
+    with the geometry the neck motion (physics.nonlinear.drive_state)."""
+    from scipy.signal import butter, sosfiltfilt
+
+    if inside not in cal.channels:
+        raise InputError(cal.source_path or "calibration", f"channel {inside}",
+                         "the calibration file has no sensitivity for the inside channel")
+    sens = cal.channels[inside].sensitivity_fs_per_pa
+    fs = rec.sample_rate_hz
+    lo = max(1.0, fit.f0_hz * (1 - 1 / max(fit.q, 0.6)))
+    hi = min(0.45 * fs, fit.f0_hz * (1 + 1 / max(fit.q, 0.6)))
+    x = rec.channel(inside)
+    sos = butter(2, [lo, hi], btype="bandpass", fs=fs, output="sos")
+    y = sosfiltfilt(sos, x)
+    p_amp = float(np.max(np.abs(y))) / sens
+    out: dict[str, Any] = {"inside_sensitivity_fs_per_pa": sens,
+                           "cavity_pressure_amplitude_pa": p_amp,
+                           "cavity_spl_db": float(20 * np.log10(p_amp / math.sqrt(2) / 20e-6))}
+    if obj is not None:
+        from .physics.nonlinear import drive_state
+
+        state = drive_state(p_amp, fit.f0_hz, obj, air)
+        out.update(state.to_dict())
+        flags += check_drive(state.to_dict())
+    return out
 
 
 def _main_mode_result(mf: Any, tf: TransferFunction) -> FitResult:
@@ -466,7 +550,7 @@ def signal_quality(tf: TransferFunction, fit: FitResult) -> dict[str, Any]:
 
 
 def _ringdown(rec: Recording, channel: int, obj: ResonatorObject | None, air: AirState,
-              sources: dict[str, str], flags: list[Flag], tolerance: float) -> Result:
+              sources: dict[str, str], flags: list[Flag], tolerance: float | None) -> Result:
     from .fitting.ringdown import combine, fit_ringdown
 
     x = rec.channel(channel)
@@ -482,12 +566,12 @@ def _ringdown(rec: Recording, channel: int, obj: ResonatorObject | None, air: Ai
                     weighting="noise-estimate", correlation_f0_q=math.nan, nfev=0,
                     method="damped-sinusoid")
     flags += check_fit_quality(fit)
-    prediction, derived = _geometry(obj, air, fit, flags, tolerance)
+    prediction, derived, used_tol = _geometry(obj, air, fit, flags, tolerance)
     info = InputInfo(recording=str(rec.path), sample_rate_hz=rec.sample_rate_hz,
                      inside_channel=channel, outside_channel=None, method="ringdown",
                      polarity_inverted=False, duration_s=rec.duration_s, subtype=rec.subtype)
     pencil = [{"f0_hz": d.pencil_f0_hz, "q": d.pencil_q} for d in decays]
-    return Result(info, air, sources, fit, None, prediction, derived, obj, flags, tolerance,
+    return Result(info, air, sources, fit, None, prediction, derived, obj, flags, used_tol,
                   modes=[{"f0_hz": f0, "f0_stderr_hz": sf, "q": q, "q_stderr": sq,
                           "gain": fit.gain, "gain_stderr": math.nan}],
                   circle=None, quality={"decays": len(decays), "matrix_pencil": pencil},

@@ -39,7 +39,7 @@ HARMONIC_ORDERS_EXCLUDED = 8
 HARMONIC_ORDERS_THD = 5
 #: Segments averaged in the cross-spectral path should be at least this long,
 #: in units of 1/(bandwidth) = Q/f0 (Bendat & Piersol resolution bias rule).
-SEGMENT_BANDWIDTHS = 8.0
+SEGMENT_BANDWIDTHS = 16.0
 #: Shortest Welch segment (s) when the recording allows: the reference spectrum
 #: must be resolved finely enough (room ripple) for the kernel model to hold.
 MIN_SEGMENT_S = 0.1

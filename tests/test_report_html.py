@@ -29,7 +29,7 @@ QUOTED_NOTE = 'said "ring it" & it\'s <b>flat</b>'
 FORMULA_NOTE = "=HYPERLINK(\"http://example.invalid\")"
 CHROMIUM_FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
                   "--disable-component-update", "--disable-sync", "--no-first-run",
-                  "--hide-scrollbars", "--mute-audio"]
+                  "--hide-scrollbars", "--mute-audio", "--disable-dev-shm-usage"]
 
 
 @pytest.fixture(scope="module")

@@ -67,8 +67,8 @@ def batch(manifest: Path, spec_path: Path, out_dir: Path, workers: int | None, r
             click.echo(f"\ncharacterize: batch interrupted: {exc}", err=True)
             sys.exit(1)
         except KeyboardInterrupt:
-            click.echo(f"\ncharacterize: batch interrupted: {counts['done']} of {n} items are "
-                       f"saved in {Path(out_dir) / 'items'}; rerun with --resume", err=True)
+            click.echo(f"\ncharacterize: batch interrupted: the finished items are saved in "
+                       f"{Path(out_dir) / 'items'}; rerun with --resume", err=True)
             sys.exit(1)
     written = write_reports(summary, out_dir)
     st = summary.stats

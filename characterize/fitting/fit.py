@@ -170,14 +170,13 @@ def local_kernel(tf: TransferFunction, f: NDArray[np.float64]) -> Kernel:
 def stderr_scale(redchi: float, weighted: bool, tf: TransferFunction) -> float:
     """Factor on the covariance errors, from the reduced chi-square.
 
-    Sweep path: the per-bin noise is measured in the noise-only stretch of the
-    impulse responses, so the errors are only ever scaled up (a chi-square above 1
-    means model error, which the errors should then include). Cross-spectral
-    paths: the coherence-based error (Bendat & Piersol) carries the leakage of
-    short segments as if it were noise and overstates the per-bin error, so the
-    residuals set the scale both ways. No noise estimate: the residuals set it.
+    With a noise estimate the errors are only ever scaled up: a chi-square above
+    1 means noise underestimated or model error, which the errors should then
+    include; below 1 they are left as the noise model says (conservative).
+    Without a noise estimate (an imported CSV, or no noise-only stretch) the
+    residuals set the scale.
     """
-    if weighted and tf.coherence is None:
+    if weighted:
         return math.sqrt(max(1.0, redchi))
     return math.sqrt(redchi)
 
