@@ -874,8 +874,14 @@ def _load_valid(item: ManifestItem, settings: dict[str, Any], items_dir: Path
     if not isinstance(doc, dict) or doc.get("schema") != SCHEMA:
         return None
     made = doc.get("batch_item")
-    if not isinstance(made, dict) or any(made.get(k) != v for k, v in settings.items()):
+    if not isinstance(made, dict):
         return None
+    for k, v in settings.items():
+        old = made.get(k)
+        if k in ("recording", "object", "sweep") and old is not None and v is not None:
+            old, v = os.path.abspath(old), os.path.abspath(v)  # same file, other cwd
+        if old != v:
+            return None
     if not isinstance(doc.get("fit"), dict):
         return None
     plot = made.get("plot")

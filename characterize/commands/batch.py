@@ -11,7 +11,7 @@ import click
 from ._errors import handles_errors
 
 
-@click.command("batch")
+@click.command("batch", short_help="Check every recording in a manifest against a spec; reports.")
 @click.argument("manifest", type=click.Path(path_type=Path))
 @click.option("--spec", "spec_path", required=True, type=click.Path(path_type=Path),
               help="Spec (TOML): f0 target and tolerance, Q limits, flags that fail.")

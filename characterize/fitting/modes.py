@@ -198,7 +198,9 @@ def fit_modes(tf: TransferFunction, n_modes: int, *, background_order: int = -1,
             params.add(f"g{k}", value=abs(gains[0].real), min=0.0)
         else:
             params.add(f"g{k}", value=float(sign * gains[k].real))
-    params.add("tau", value=tau0, min=-MAX_DELAY_S, max=MAX_DELAY_S)
+    # with a background the polynomial carries the phase trend: the delay stays at
+    # its grid estimate (varying both makes the problem nearly degenerate)
+    params.add("tau", value=tau0, min=-MAX_DELAY_S, max=MAX_DELAY_S, vary=not n_bg)
     c0 = gains[0] if n_bg else 1.0
     for j in range(n_bg):
         params.add(f"b{j}r", value=c0.real if j == 0 else 0.0)

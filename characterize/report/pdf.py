@@ -30,9 +30,6 @@ ROWS_PER_PAGE = 34
 ITEMS_PER_PAGE = 2
 PLOT_PAGES = ("f0_histogram", "q_histogram", "control_chart")
 MAX_OUTLIERS_ON_COVER = 14
-#: Item plots are embedded at this fraction of their pixels: about 115 pixels per
-#: inch on the page, as sharp as the PNG on screen, and a third faster to write.
-PDF_IMAGE_SCALE = 1.0
 _STATUS = {"pass": "PASS", "fail": "FAIL", "error": "ERROR"}
 
 
@@ -314,13 +311,9 @@ def _read_png(out_dir: Path, rel: str | None) -> Any:
 
     try:
         with Image.open(out_dir / rel) as im:
-            rgb = im.convert("RGB")
+            return np.asarray(im.convert("RGB"))
     except (OSError, ValueError):
         return None
-    if PDF_IMAGE_SCALE != 1:
-        size = (round(rgb.width * PDF_IMAGE_SCALE), round(rgb.height * PDF_IMAGE_SCALE))
-        rgb = rgb.resize(size, Image.Resampling.BOX)
-    return np.asarray(rgb)
 
 
 def write_batch_pdf(summary: BatchSummary, out_dir: str | Path, path: str | Path) -> Path:
