@@ -95,8 +95,6 @@ class Checker:
         self.figures_path: Path | None = None
 
     def __call__(self, data: bytes) -> None:
-        import warnings
-
         self.tried += 1
         try:
             self._check(data)

@@ -153,7 +153,8 @@ def check_not_silent(rec: Recording, number: int, role: str) -> None:
     x = rec.data[:, number - 1]
     if float(np.max(np.abs(x))) < SILENCE_PEAK:
         raise InputError(rec.path, f"channel {number}",
-                         f"the {role} channel is silent (peak below {SILENCE_PEAK:g} of full scale)")
+                         f"the {role} channel is silent (peak below {SILENCE_PEAK:g} of "
+                         "full scale)")
 
 
 def clip_report(rec: Recording, number: int) -> ClipReport:

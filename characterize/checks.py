@@ -202,9 +202,10 @@ def check_methods_agree(fit: FitResult, circle: dict[str, float]) -> list[Flag]:
 
 
 def check_multiple_peaks(fit: FitResult, peaks: list[tuple[float, float]]) -> list[Flag]:
-    others = [p for p in peaks if abs(p[0] - fit.f0_hz) > fit.f0_hz / fit.q]
-    if not others:
+    if len(peaks) < 2:
         return []
+    nearest = min(peaks, key=lambda p: abs(p[0] - fit.f0_hz))
+    others = [p for p in peaks if p is not nearest]
     where = ", ".join(f"{p[0]:.1f} Hz" for p in others[:3])
     return [Flag("multiple-peaks", "warning",
                  f"{len(others)} other resonance peak(s) in the fit band ({where}); if they "

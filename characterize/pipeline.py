@@ -65,6 +65,10 @@ DEFAULT_AIR = {"temperature_c": 20.0, "relative_humidity": 0.5, "pressure_pa": 1
 METHODS = ("auto", "sweep", "h1", "h2", "one-channel", "ringdown", "csv")
 #: Order of the complex polynomial background on the one-microphone paths.
 BACKGROUND_ORDER = 3
+#: An excitation file must match the recording this well (normalised cross-
+#: correlation) and cover this fraction of what was recorded after its start.
+EXCITATION_MIN_MATCH = 0.1
+EXCITATION_MIN_COVER = 0.9
 
 
 @dataclass(frozen=True)
@@ -211,11 +215,21 @@ def _align_excitation(x: np.ndarray, y: np.ndarray, source: str) -> np.ndarray:
         raise InputError(source, None, f"excitation ({x.size} samples) is longer than the "
                          f"recording ({y.size} samples)")
     c = correlate(y, x, mode="full", method="fft")
-    lag = int(np.argmax(np.abs(c))) - (x.size - 1)
+    k = int(np.argmax(np.abs(c)))
+    lag = k - (x.size - 1)
     out = np.zeros_like(y)
     lo, hi = max(0, lag), min(y.size, lag + x.size)
-    if hi - lo < 0.5 * x.size:
-        raise InputError(source, None, "the excitation was not found in the recording")
+    seg_y = y[lo:hi]
+    norm = float(np.linalg.norm(x[lo - lag:hi - lag]) * np.linalg.norm(seg_y))
+    match = abs(float(c[k])) / norm if norm > 0 else 0.0
+    if hi - lo < 0.5 * x.size or match < EXCITATION_MIN_MATCH:
+        raise InputError(source, None, "this excitation was not found in the recording "
+                         f"(normalised correlation {match:.2f} < {EXCITATION_MIN_MATCH:g}): "
+                         "is it the file that was played?")
+    if (hi - lo) < EXCITATION_MIN_COVER * (y.size - lo):
+        raise InputError(source, None, f"the excitation covers only {hi - lo} of the "
+                         f"{y.size - lo} samples recorded after its start: it is shorter "
+                         "than needed (give the whole file that was played)")
     out[lo:hi] = x[lo - lag:hi - lag]
     return out
 
@@ -437,7 +451,7 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
     flags += check_polarity(fit)
     flags += check_signal_quality(quality, tf.coherence is not None and not one_mic)
     flags += check_nonlinear_drive(quality)
-    if circle is not None:
+    if circle is not None and n_modes == 1:  # the circle is a single-mode cross-check
         flags += check_methods_agree(fit, circle.to_dict())
     if n_modes == 1 and band_hz is None:
         from .fitting.modes import find_resonances

@@ -157,7 +157,8 @@ class Case:
         from .excitation import SweepParams
         from .simulate import Setup
 
-        sweep = None if self.sweep is None else SweepParams(rate_hz=self.rate_hz, **self.sweep)
+        sweep = None if self.sweep is None else SweepParams(
+            rate_hz=self.rate_hz, **self.sweep)  # type: ignore[arg-type]
         return Setup(f0_hz=self.f0_hz, q=self.q, rate_hz=self.rate_hz, snr_db=self.snr_db,
                      excitation=self.method, sweep=sweep,
                      noise_duration_s=self.noise_duration_s, delay_s=self.delay_s,
@@ -240,9 +241,9 @@ class Criterion:
 
 def bias_criterion(z: Sequence[float]) -> Criterion:
     """|mean z / sd z| <= 0.1 + 3/sqrt(N)."""
-    z = np.asarray(z, dtype=np.float64)
-    n = z.size
-    value = float(np.mean(z) / np.std(z, ddof=1)) if n > 2 else math.nan
+    za = np.asarray(z, dtype=np.float64)
+    n = za.size
+    value = float(np.mean(za) / np.std(za, ddof=1)) if n > 2 else math.nan
     allow = BIAS_TARGET_SIGMA + ALLOWANCE_SE / math.sqrt(max(n, 1))
     return Criterion("bias / sd", value, f"|b| < {BIAS_TARGET_SIGMA:g}", -allow, allow)
 
@@ -251,26 +252,27 @@ def variance_criterion(z: Sequence[float]) -> Criterion:
     """Sample variance of z within [chi2_lo/(N-1)/1.2, 1.2 chi2_hi/(N-1)]."""
     from scipy.stats import chi2
 
-    z = np.asarray(z, dtype=np.float64)
-    n = z.size
+    za = np.asarray(z, dtype=np.float64)
+    n = za.size
     if n < 3:
         return Criterion("var / CRLB", math.nan, f"1 to {VARIANCE_RATIO_TARGET:g}", 0.0, 0.0)
     dof = n - 1
     lo = float(chi2.ppf(VARIANCE_TAIL, dof)) / dof / VARIANCE_RATIO_TARGET
     hi = float(chi2.ppf(1 - VARIANCE_TAIL, dof)) / dof * VARIANCE_RATIO_TARGET
-    return Criterion("var / CRLB", float(np.var(z, ddof=1)),
+    return Criterion("var / CRLB", float(np.var(za, ddof=1)),
                      f"1 to {VARIANCE_RATIO_TARGET:g}", lo, hi)
 
 
 def coverage_criterion(e: Sequence[float], k: int) -> Criterion:
     """Fraction of |e| <= k within 5 points + 3 binomial standard errors of the
     Gaussian value."""
-    e = np.asarray(e, dtype=np.float64)
-    n = e.size
+    ea = np.asarray(e, dtype=np.float64)
+    n = ea.size
     p = COVERAGE_TARGETS[k - 1]
-    value = float(np.mean(np.abs(e) <= k)) if n else math.nan
+    value = float(np.mean(np.abs(ea) <= k)) if n else math.nan
     allow = COVERAGE_TOLERANCE + ALLOWANCE_SE * math.sqrt(p * (1 - p) / max(n, 1))
-    return Criterion(f"{k}-sigma coverage", value, f"{100 * p:.1f} % ± {100 * COVERAGE_TOLERANCE:g}",
+    target = f"{100 * p:.1f} % ± {100 * COVERAGE_TOLERANCE:g}"
+    return Criterion(f"{k}-sigma coverage", value, target,
                      max(0.0, p - allow), min(1.0, p + allow))
 
 
@@ -426,6 +428,9 @@ def run_trial(case: Case, workdir: str | Path) -> Trial:
     except (FitError, InputError) as exc:
         return Trial(case, error=f"{type(exc).__name__}: {exc}",
                      seconds=time.perf_counter() - t0)
+    except Exception as exc:  # a bug: record it as a failed trial, finish the others
+        return Trial(case, error=f"internal error {type(exc).__name__}: {exc}",
+                     seconds=time.perf_counter() - t0)
     fit = res.fit
     return Trial(case, f0_hz=fit.f0_hz, f0_stderr_hz=fit.f0_stderr_hz, crlb_f0_hz=fit.crlb_f0_hz,
                  q=fit.q, q_stderr=fit.q_stderr, crlb_q=fit.crlb_q,
@@ -438,7 +443,7 @@ def _thirds(trials: Sequence[Trial], key: Callable[[Trial], float], edges: Seque
             label: str, fmt: str) -> list[tuple[str, list[Trial]]]:
     out = []
     bounds = [-math.inf, *edges, math.inf]
-    for lo, hi in zip(bounds[:-1], bounds[1:]):
+    for lo, hi in zip(bounds[:-1], bounds[1:], strict=True):
         sel = [t for t in trials if lo <= key(t) < hi]
         if math.isinf(lo):
             name = f"{label} < {fmt.format(hi)}"

@@ -275,12 +275,14 @@ def harmonic_distortion(ir: NDArray[np.float64], onset: int, pre: int, sweep: Sw
     sits T ln(n)/ln(f2/f1) before the linear one, and its spectrum at n f is the
     n-th harmonic's amplitude for a drive at f, relative to the drive (the
     harmonic sweeps through n f at the same relative rate as the sweep itself;
-    Farina 2000). THD(f) = sqrt(sum_n |H_n(n f)|^2) / |H_1(f)| for n = 2..5.
+    Farina 2000). THD(f) = sqrt(sum_n |H_n(n f)|^2) / |H_1(f)| for n = 2..5,
+    NaN where f or its 2nd or 3rd harmonic lies outside the band the band limit
+    leaves unattenuated (higher orders beyond it are left out).
     """
     p = sweep.params
     n_fft = ir.size
     total = np.zeros(freqs_hz.size)
-    lo, hi = p.start_hz * 1.0, p.stop_hz
+    lo, hi = usable_band(p)  # where the band limit leaves the responses unattenuated
     from scipy import fft as sfft
 
     for order in range(2, HARMONIC_ORDERS_THD + 1):
@@ -299,10 +301,12 @@ def harmonic_distortion(ir: NDArray[np.float64], onset: int, pre: int, sweep: Sw
         target = order * freqs_hz
         mag = np.interp(target, f_n, np.abs(spec), right=np.nan)
         mag[(target > hi) | (target < lo)] = np.nan
+        if order <= 3:  # the 2nd and 3rd harmonics carry most distortion: no THD without them
+            total[target > hi] = np.nan
         total = total + np.where(np.isfinite(mag), mag, 0.0) ** 2
     with np.errstate(divide="ignore", invalid="ignore"):
         thd = np.sqrt(total) / np.abs(fundamental)
-    thd[(freqs_hz < p.start_hz) | (2 * freqs_hz > hi)] = np.nan
+    thd[(freqs_hz < lo) | (2 * freqs_hz > hi)] = np.nan
     return thd
 
 
@@ -329,11 +333,20 @@ def first_reflection(ir: NDArray[np.float64], onset: int, rate_hz: float, lo_hz:
     env = maximum_filter1d(np.abs(sosfiltfilt(sos, seg)), size=max(3, int(2.5e-4 * rate_hz)))
     z = int(0.01 * rate_hz)
     direct = float(np.max(env[z: z + int(0.002 * rate_hz)]))
-    gap = z + int(0.0015 * rate_hz)
-    later = np.flatnonzero(env[gap:] > REFLECTION_FRACTION * direct)
-    if later.size == 0 or direct <= 0:
+    # skip the direct sound's own ringing through the band-pass (a few periods of
+    # its lowest frequency), then look for a rise: an arrival, not a decaying tail
+    gap = z + max(int(0.0015 * rate_hz), int(4 * rate_hz / lo))
+    rise = max(2, int(0.001 * rate_hz))
+    if direct <= 0 or gap + rise >= env.size:
         return None
-    return int(gap + later[0] - z)
+    from scipy.ndimage import minimum_filter1d
+
+    before = minimum_filter1d(env, size=rise, origin=(rise - 1) // 2)  # min over the past 1 ms
+    cand = np.flatnonzero((env[gap:] > REFLECTION_FRACTION * direct)
+                          & (env[gap:] > 2.0 * before[gap - rise: env.size - rise]))
+    if cand.size == 0:
+        return None
+    return int(gap + cand[0] - z)
 
 
 #: Bins where the outside level is this many dB below its median in the band are

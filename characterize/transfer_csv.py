@@ -25,6 +25,7 @@ _PATTERNS = {
     "imag": re.compile(r"^(im|imag|imaginary)(\b|_|\s|\(|\[|$)", re.I),
     "magnitude_db": re.compile(r"(mag|magnitude|level|gain|amplitude).*db|^db", re.I),
     "phase": re.compile(r"^(phase|phi|arg)", re.I),
+    "sigma": re.compile(r"^(sigma|std|uncertainty)(\b|_|\s|\(|\[|$)", re.I),
 }
 HEADER_HELP = ("expected a header with 'frequency_hz' and either 'real','imag' or "
                "'magnitude_db','phase_deg'")
@@ -40,8 +41,9 @@ def _find(header: list[str], kind: str) -> int | None:
 def read_transfer_csv(path: str | Path) -> TransferFunction:
     """Read a transfer function from CSV (see the module docstring).
 
-    The noise per bin is unknown, so the fit uses equal weights and takes its
-    standard errors from the residuals (``fit.weighting = "residuals"``).
+    Without a ``sigma`` column (the per-bin noise our own export writes) the
+    noise is unknown, so the fit uses equal weights and takes its standard
+    errors from the residuals (``fit.weighting = "residuals"``).
     """
     p = Path(path)
     try:
@@ -53,18 +55,26 @@ def read_transfer_csv(path: str | Path) -> TransferFunction:
     lines = [ln for ln in text.splitlines() if ln.strip() and not ln.lstrip().startswith("#")]
     if len(lines) < 2:
         raise InputError(str(p), None, f"no data rows; {HEADER_HELP}")
-    try:
-        dialect = csv.Sniffer().sniff(lines[0] + "\n" + lines[1], delimiters=",;\t ")
-        delim = dialect.delimiter
-    except csv.Error:
-        delim = ","
-    rows = list(csv.reader(io.StringIO("\n".join(lines)), delimiter=delim,
-                           skipinitialspace=True))
+    first = lines[0]
+    if not any(d in first for d in ",;\t"):
+        delim = " "  # aligned columns separated by spaces
+    else:
+        try:
+            dialect = csv.Sniffer().sniff(lines[0] + "\n" + lines[1], delimiters=",;\t")
+            delim = dialect.delimiter
+        except csv.Error:
+            delim = ","
+    if delim == " ":
+        rows = [ln.split() for ln in lines]
+    else:
+        rows = list(csv.reader(io.StringIO("\n".join(lines)), delimiter=delim,
+                               skipinitialspace=True))
     header = [h.strip() for h in rows[0] if h.strip() != ""] if delim == " " else \
         [h.strip() for h in rows[0]]
     i_f = _find(header, "frequency")
     i_re, i_im = _find(header, "real"), _find(header, "imag")
     i_mag, i_ph = _find(header, "magnitude_db"), _find(header, "phase")
+    i_sig = _find(header, "sigma")
     if i_f is None:
         raise InputError(str(p), "header", f"no frequency column in {header}; {HEADER_HELP}")
     if i_re is not None and i_im is not None:
@@ -77,7 +87,8 @@ def read_transfer_csv(path: str | Path) -> TransferFunction:
     for k, row in enumerate(rows[1:], start=2):
         cells = [c for c in row if c.strip() != ""] if delim == " " else row
         try:
-            vals = [float(cells[c]) for c in cols]
+            vals = [float(cells[c]) for c in cols] + (
+                [float(cells[i_sig])] if i_sig is not None else [])
         except IndexError:
             raise InputError(str(p), f"row {k}", f"has {len(cells)} columns, "
                              f"expected at least {max(cols) + 1}") from None
@@ -100,9 +111,15 @@ def read_transfer_csv(path: str | Path) -> TransferFunction:
     else:
         ph = arr[:, 2] if "rad" in header[cols[2]].lower() else np.radians(arr[:, 2])
         h = 10 ** (arr[:, 1] / 20) * np.exp(1j * ph)
-    nan = np.full(f.size, np.nan)
-    return TransferFunction(f, h.astype(np.complex128), nan, nan, (float(f[0]), float(f[-1])),
-                            "csv", np.zeros(f.size))
+    if i_sig is not None:  # our own export: the per-bin noise (sqrt of E|n|^2)
+        sig = arr[:, 3]
+        if np.any(sig <= 0):
+            raise InputError(str(p), "sigma", "must be greater than zero")
+        noise_a, noise_b = sig**2, np.zeros(f.size)
+    else:
+        noise_a = noise_b = np.full(f.size, np.nan)
+    return TransferFunction(f, h.astype(np.complex128), noise_a, noise_b,
+                            (float(f[0]), float(f[-1])), "csv", np.zeros(f.size))
 
 
 def write_transfer_csv(path: str | Path, tf: TransferFunction) -> Path:

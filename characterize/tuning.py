@@ -877,7 +877,6 @@ def advise_trim(result: ResultSummary, target_hz: float) -> TrimAdvice:
     def leff(f: float) -> float:
         return derive_from_f0(f, 0.0, obj, air).effective_neck_length_m
 
-    l_eff = leff(f0)
     l_eff_t = leff(target_hz)
     new_length = l_eff_t - delta
     # new_length = L_eff(f_t) - (L_eff(f0) - L): only L_eff(f0) carries the error

@@ -106,12 +106,6 @@ def test_thd_doubles_with_the_square_term_and_level() -> None:
     assert t3 / t1 == pytest.approx(2.0, rel=0.01)
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "library bug (reported): harmonic_distortion reports a THD where the fundamental or a "
-    "harmonic lies outside the deconvolution's band limit (between start_hz and "
-    "usable_band's low corner the fundamental is attenuated, THD reads 12x too high at "
-    "60 Hz; where 3f is above the high corner the 3rd harmonic is cut, THD reads 0.14x at "
-    "1600 Hz) instead of leaving those bins NaN"))
 def test_thd_is_right_or_absent_near_the_band_edges() -> None:
     a2, a3, level = 0.0, 0.3, -6.0
     p, tf = _polynomial_case(a2, a3, level, seed=3)

@@ -19,7 +19,6 @@ from __future__ import annotations
 import json
 import math
 import warnings
-from pathlib import Path
 
 import pytest
 from click.testing import CliRunner
@@ -268,9 +267,10 @@ def test_load_object_from_any_bytes_answers_or_refuses(tmp_path, raw):
         _assert_valid_object(obj)
 
 
-@pytest.mark.xfail(strict=True, raises=AssertionError, reason="an unknown key is echoed raw into the InputError "
-                   "message, so a key holding a line break makes a two-line message; fix "
-                   "proposed to the lead (errors.InputError). Remove this mark when it lands.")
+@pytest.mark.xfail(strict=True, raises=AssertionError,
+                   reason="an unknown key is echoed raw into the InputError message, so a "
+                   "key holding a line break makes a two-line message; fix proposed to the "
+                   "lead (errors.InputError). Remove this mark when it lands.")
 @pytest.mark.parametrize("key", ["a\nb", "x\r", "\u2028", "\x1e"])
 def test_control_characters_in_keys(key):
     with pytest.raises(InputError) as info:

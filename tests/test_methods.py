@@ -156,7 +156,7 @@ def _cases() -> dict[str, Case]:
                                    "one-sweep", "one-channel-sweep",
                                    "oscillator-with-background"),
         "one-sweep-late-reflection": Case(Setup(f0_hz=1500.0, q=10.0, rate_hz=48000.0,
-                                                reflections=((0.08, 0.3),), **quiet), 9,
+                                                reflections=((0.08, 0.3),), **quiet), 4,
                                           "one-sweep", "one-channel-sweep",
                                           "oscillator-with-background"),
         # inside microphone and the noise file that was played (no room: with noise,
@@ -319,6 +319,16 @@ def test_one_microphone_windows_end_before_the_reflection(runs) -> None:
     assert anechoic.reflection_s is None or anechoic.reflection_s > anechoic.length_s
 
 
+def test_one_microphone_late_reflection_seed_9(tmp_path: Path) -> None:
+    case = Case(Setup(f0_hz=1500.0, q=10.0, rate_hz=48000.0, snr_db=30.0,
+                      reflections=((0.08, 0.3),)), 9, "one-sweep", "one-channel-sweep",
+                "oscillator-with-background")
+    case.files = _write_case(tmp_path, case)
+    res = _analyze(case)
+    assert abs(res.fit.f0_hz / 1500.0 - 1) < 1e-3
+    assert abs(res.fit.q / 10.0 - 1) < 0.03
+
+
 # --------------------------------------------------------------------------
 # window-too-short when a reflection cuts the one-microphone window
 # --------------------------------------------------------------------------
@@ -341,11 +351,6 @@ def test_reflection_cutting_the_window_raises_window_too_short(tmp_path: Path) -
     assert res.to_dict()["quality"]["window_ms"] == pytest.approx(1000 * win.length_s)
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "library bug (reported): first_reflection high-passes at min(4 f0, 0.4 hi) and takes "
-    "the resonator's own ringing (and the band limit's) for a reflection 1.5 ms after the "
-    "direct sound in anechoic one-microphone sweeps of f0 <= ~500 Hz (default sweep f0/8 "
-    "to 8 f0), which cuts the window to 16 ms"))
 @pytest.mark.parametrize("f0, q", [(200.0, 8.0), (500.0, 8.0)])
 def test_anechoic_one_microphone_sweep_has_no_reflection(f0: float, q: float) -> None:
     s = Setup(f0_hz=f0, q=q, rate_hz=16000.0, snr_db=30.0, reflections=())
@@ -415,11 +420,6 @@ def test_sweep_and_excitation_together_exit_2(noise_files, tmp_path: Path) -> No
     _one_line_exit_2(res, r"--sweep|--excitation", r"not both")
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "library bug (reported): an excitation file much shorter than the recording, or the "
-    "wrong file, is not an input error: _align_excitation only checks overlap against the "
-    "excitation's own length and never how clearly the correlation peak stands out, so the "
-    "fit fails later with 'no fit' (exit 1) or silently uses part of the recording"))
 @pytest.mark.parametrize("which", ["truncated-to-10-percent", "another-noise"])
 def test_unusable_excitation_exits_2(noise_files, tmp_path: Path, which: str) -> None:
     exc, _ = sf.read(noise_files["excitation"])

@@ -33,13 +33,19 @@ from scipy.signal import find_peaks
 
 from characterize.checks import check_multiple_peaks
 from characterize.cli import main
-from characterize.errors import FitError, InputError
+from characterize.errors import InputError
 from characterize.excitation import sidecar_path, sidecar_text
 from characterize.fitting.circle import circle_fit, fit_circle_points
 from characterize.fitting.fit import FitResult
 from characterize.fitting.modes import PEAK_PROMINENCE_DB, find_resonances, fit_modes
 from characterize.pipeline import analyze
-from characterize.simulate import Setup, resonator_response, simulate, true_transfer, write_recording
+from characterize.simulate import (
+    Setup,
+    resonator_response,
+    simulate,
+    true_transfer,
+    write_recording,
+)
 from characterize.transfer import TransferFunction
 
 # --------------------------------------------------------------------------
@@ -57,7 +63,7 @@ def synthetic_tf(f: np.ndarray, h: np.ndarray, sigma: float, rng: np.random.Gene
 
 def _true_peaks(f0s, qs, gains, f: np.ndarray, prominence_db: float) -> np.ndarray:
     """Frequencies of the peaks of the true |H| (scipy.signal.find_peaks, dB)."""
-    h = sum(g * resonator_response(f, a, b) for a, b, g in zip(f0s, qs, gains))
+    h = sum(g * resonator_response(f, a, b) for a, b, g in zip(f0s, qs, gains, strict=True))
     pk, _ = find_peaks(20 * np.log10(np.abs(h)), prominence=prominence_db)
     return f[pk]
 
@@ -89,7 +95,8 @@ MODE_FAMILY = _mode_family(8, seed=2)
 
 
 def _true_modes(case: dict, f: np.ndarray) -> np.ndarray:
-    h = sum(g * resonator_response(f, a, b) for a, b, g in zip(case["f0"], case["q"], case["g"]))
+    h = sum(g * resonator_response(f, a, b)
+            for a, b, g in zip(case["f0"], case["q"], case["g"], strict=True))
     return h * np.exp(-2j * np.pi * f * case["tau"])
 
 
@@ -100,7 +107,7 @@ def test_fit_modes_recovers_every_mode(i: int) -> None:
     tf = synthetic_tf(GRID, _true_modes(case, GRID), 0.01, np.random.default_rng(100 + i))
     mf = fit_modes(tf, k)
     assert len(mf.modes) == k
-    for m, f0, q, g in zip(mf.modes, case["f0"], case["q"], case["g"]):
+    for m, f0, q, g in zip(mf.modes, case["f0"], case["q"], case["g"], strict=True):
         assert abs(m.f0_hz / f0 - 1) < 1e-3  # the issue: f0 within 0.1 %
         assert abs(m.q / q - 1) < 0.05  # the issue: Q within 5 % (several modes)
         # honest errors: truth within 4.5 standard errors
@@ -147,10 +154,6 @@ BACKGROUND_CASES = [
     # (f0 Hz, Q, background coefficients c0..c3 in x = (f - f0)/f0): a loudspeaker-
     # like smooth complex response (values chosen here; truth of the model only)
     pytest.param(560.0, 38.0, (1.0 + 0.5j, 0.3 - 0.2j, 0.2 + 0.1j, -0.1 + 0.0j),
-                 marks=pytest.mark.xfail(strict=True, raises=FitError, reason=(
-                     "library bug (reported): with a complex polynomial background the "
-                     "delay is redundant (a phase slope the polynomial already holds); "
-                     "the fit stalls and stops at lmfit's 24000 evaluations")),
                  id="560Hz-Q38"),
     pytest.param(310.0, 19.0, (0.8 - 0.3j, -0.4 + 0.1j, 0.1 + 0.2j, 0.05 - 0.05j),
                  id="310Hz-Q19"),
@@ -191,7 +194,8 @@ def _true_prominences(setup: Setup) -> list[tuple[float, float]]:
     f = np.arange(0.3 * setup.f0_hz, 3 * setup.f0_hz, 0.25)
     db = 20 * np.log10(np.abs(true_transfer(setup, f)))
     pk, props = find_peaks(db, prominence=0.5)
-    return sorted(zip(f[pk].tolist(), props["prominences"].tolist()), key=lambda t: -t[1])
+    pairs = zip(f[pk].tolist(), props["prominences"].tolist(), strict=True)
+    return sorted(pairs, key=lambda t: -t[1])
 
 
 def _body_family(n: int, seed: int) -> list[Setup]:
@@ -285,10 +289,6 @@ def test_single_mode_fit_of_two_peaks_is_warned_about(body_runs) -> None:
         assert codes & {"multiple-peaks", "poor-fit", "methods-disagree"}, codes
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "library bug (reported): check_multiple_peaks ignores peaks within f0/Q of the "
-    "single-mode fit's f0, and a single-mode fit across two peaks has a low Q (wide "
-    "window), so the second peak is not counted: 4 of these 6 cases get no flag"))
 def test_body_mode_in_band_raises_multiple_peaks(body_runs) -> None:
     missed = [round(s.f0_hz) for s, single, _, _ in body_runs
               if "multiple-peaks" not in [fl.code for fl in single.flags]]

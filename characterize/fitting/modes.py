@@ -123,6 +123,24 @@ def _pack(fit: ModesFit) -> NDArray[np.float64]:
     return np.asarray(v)
 
 
+#: Modes fitted together must lie within this factor of the main peak's frequency
+#: and within this many dB of its level.
+MODES_SPAN_FACTOR = 8.0
+MODES_LEVEL_DB = 20.0
+
+
+def _near_main(tf: TransferFunction, peaks: list[tuple[float, float]]
+               ) -> list[tuple[float, float]]:
+    if not peaks:
+        return peaks
+    level = {p: float(np.abs(np.interp(p[0], tf.freqs_hz, np.abs(tf.h)))) for p in peaks}
+    main = max(peaks, key=lambda p: level[p])
+    floor = level[main] * 10 ** (-MODES_LEVEL_DB / 20)
+    return [p for p in peaks
+            if main[0] / MODES_SPAN_FACTOR <= p[0] <= main[0] * MODES_SPAN_FACTOR
+            and level[p] >= floor]
+
+
 def _start_gains(f: NDArray[np.float64], h: NDArray[np.complex128], w: NDArray[np.float64],
                  peaks: list[tuple[float, float]], complex_gain: bool
                  ) -> tuple[float, NDArray[np.complex128]]:
@@ -161,7 +179,12 @@ def fit_modes(tf: TransferFunction, n_modes: int, *, background_order: int = -1,
     """
     import lmfit
 
-    peaks = starts if starts is not None else find_resonances(tf, band_hz)
+    if starts is not None:
+        peaks = starts
+    else:
+        # resonances near the main one: within a factor 8 in frequency and 20 dB in level
+        found = find_resonances(tf, band_hz)
+        peaks = _near_main(tf, found) if band_hz is None else found
     if len(peaks) < n_modes:
         raise InputError("--modes", None, f"{n_modes} modes asked for but the data show "
                          f"{len(peaks)} resonance peak(s) of at least {PEAK_PROMINENCE_DB:g} dB "

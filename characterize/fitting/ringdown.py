@@ -29,6 +29,8 @@ MIN_DECAY_DB = 20.0
 END_ABOVE_NOISE_DB = 6.0
 #: Skip this much after the peak (the excitation itself) before fitting (s).
 SKIP_AFTER_PEAK_S = 0.002
+#: Shortest stretch fitted as a decay (s).
+MIN_DECAY_S = 0.002
 #: Largest number of samples handed to the fit per decay (decimated above).
 MAX_FIT_SAMPLES = 20000
 
@@ -116,7 +118,7 @@ def find_decays(x: NDArray[np.float64], rate_hz: float) -> list[tuple[int, int, 
         stop = j + int(below[0]) if below.size else n
         peak = j + int(np.argmax(np.abs(x[j:stop])))
         start = peak + skip
-        if stop - start > int(0.01 * rate_hz):
+        if stop - start > max(32, int(MIN_DECAY_S * rate_hz)):
             out.append((start, stop, noise_rms))
         i = stop + 1
     return out
