@@ -3,6 +3,12 @@
 from __future__ import annotations
 
 
+def _one_line(text: str) -> str:
+    """User text (keys, file names) may hold line breaks or control characters:
+    escape them, so that a message stays one line."""
+    return "".join(ch if ch.isprintable() else repr(ch)[1:-1] for ch in text)
+
+
 class CharacterizeError(Exception):
     """Base class of the tool's own errors."""
 
@@ -15,11 +21,11 @@ class InputError(CharacterizeError):
     """
 
     def __init__(self, source: str, field: str | None, expected: str) -> None:
-        self.source = str(source)
-        self.field = field
-        self.expected = expected
-        where = self.source if field is None else f"{self.source}: {field}"
-        super().__init__(f"{where}: {expected}")
+        self.source = _one_line(str(source))
+        self.field = None if field is None else _one_line(str(field))
+        self.expected = _one_line(str(expected))
+        where = self.source if self.field is None else f"{self.source}: {self.field}"
+        super().__init__(f"{where}: {self.expected}")
 
 
 class FitError(CharacterizeError):

@@ -147,14 +147,21 @@ def read_sidecar(path: str | Path) -> SweepParams:
     except tomllib.TOMLDecodeError as exc:
         raise InputError(str(p), None, f"not valid TOML ({exc})") from None
     table = data.get("sweep", data)
+    if not isinstance(table, dict):
+        raise InputError(str(p), "sweep", f"expected a [sweep] table, got {table!r}")
     values: dict[str, float | str] = {}
     for name in ("start_hz", "stop_hz", "duration_s", "rate_hz", "level_dbfs",
                  "fade_in_s", "fade_out_s", "tail_s"):
         if name not in table:
             raise InputError(str(p), f"sweep.{name}", "missing")
         v = table[name]
-        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
-            raise InputError(str(p), f"sweep.{name}", f"expected a number, got {v!r}")
+        try:
+            ok = not isinstance(v, bool) and isinstance(v, (int, float)) and math.isfinite(v)
+        except OverflowError:
+            ok = False
+        if not ok:
+            raise InputError(str(p), f"sweep.{name}", f"expected a finite number, got "
+                             f"{str(v)[:40]!r}")
         values[name] = float(v)
     params = SweepParams(**values)  # type: ignore[arg-type]
     validate_params(params, str(p))

@@ -267,10 +267,6 @@ def test_load_object_from_any_bytes_answers_or_refuses(tmp_path, raw):
         _assert_valid_object(obj)
 
 
-@pytest.mark.xfail(strict=True, raises=AssertionError,
-                   reason="an unknown key is echoed raw into the InputError message, so a "
-                   "key holding a line break makes a two-line message; fix proposed to the "
-                   "lead (errors.InputError). Remove this mark when it lands.")
 @pytest.mark.parametrize("key", ["a\nb", "x\r", "\u2028", "\x1e"])
 def test_control_characters_in_keys(key):
     with pytest.raises(InputError) as info:
@@ -429,10 +425,6 @@ def test_read_sidecar_from_any_bytes(tmp_path, raw):
         _assert_valid_params(params)
 
 
-@pytest.mark.xfail(strict=True, raises=(TypeError, OverflowError),
-                   reason="excitation.read_sidecar: a non-table 'sweep' value and "
-                   "integers beyond float range escape as TypeError/OverflowError; fix proposed "
-                   "to the lead (owner of excitation.py). Remove this mark when it lands.")
 @pytest.mark.parametrize("text", ["sweep = 3\n", "sweep = true\n",
                                   "[sweep]\nstart_hz = 1" + "0" * 400 + "\n"])
 def test_sidecar_known_crashes(tmp_path, text):
