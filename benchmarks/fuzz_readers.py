@@ -26,6 +26,7 @@ import argparse
 import io
 import json
 import os
+import shutil
 import subprocess
 import sys
 import tempfile
@@ -135,6 +136,12 @@ class Checker:
                 "details": self.crashes}
 
 
+def _workdir() -> Path:
+    """The parent's per-target directory (it removes it), else a new temporary one."""
+    given = os.environ.get("FUZZ_WORKDIR")
+    return Path(given) if given else Path(tempfile.mkdtemp(prefix="characterize-fuzz-"))
+
+
 def run_atheris(target: str, runs: int) -> dict[str, object]:
     import atheris
 
@@ -143,7 +150,7 @@ def run_atheris(target: str, runs: int) -> dict[str, object]:
         import characterize.excitation  # noqa: F401
         import characterize.physics.geometry  # noqa: F401
         import characterize.units  # noqa: F401
-    work = Path(tempfile.mkdtemp(prefix="characterize-fuzz-"))
+    work = _workdir()
     corpus = work / "corpus"
     corpus.mkdir()
     for i, s in enumerate(seeds(target)):
@@ -160,7 +167,7 @@ def run_hypothesis(target: str, runs: int) -> dict[str, object]:
     from hypothesis import HealthCheck, given, settings
     from hypothesis import strategies as st
 
-    work = Path(tempfile.mkdtemp(prefix="characterize-fuzz-"))
+    work = _workdir()
     check = Checker(target, work)
     base = seeds(target)
 
@@ -212,14 +219,20 @@ def main() -> None:
     rows = []
     for target in TARGETS:  # one process per target (libFuzzer runs one target per process)
         t = time.perf_counter()
-        fig_path = Path(tempfile.mkdtemp(prefix="characterize-fuzz-")) / "figures.json"
-        proc = subprocess.run([sys.executable, __file__, "--runs", str(opts.runs), "--target",
-                               target, "--engine", engine], capture_output=True, text=True,
-                              env={**os.environ, "OMP_NUM_THREADS": "1",
-                                   "FUZZ_FIGURES": str(fig_path)})
+        work = Path(tempfile.mkdtemp(prefix="characterize-fuzz-"))
+        fig_path = work / "figures.json"
+        try:
+            proc = subprocess.run([sys.executable, __file__, "--runs", str(opts.runs),
+                                   "--target", target, "--engine", engine],
+                                  capture_output=True, text=True,
+                                  env={**os.environ, "OMP_NUM_THREADS": "1",
+                                       "FUZZ_FIGURES": str(fig_path), "FUZZ_WORKDIR": str(work)})
+            figures = fig_path.read_text(encoding="utf-8") if fig_path.exists() else None
+        finally:
+            shutil.rmtree(work, ignore_errors=True)
         line = next((ln for ln in proc.stdout.splitlines() if ln.startswith("FIGURES ")), None)
-        if line is None and fig_path.exists() and proc.returncode == 0:
-            fig = json.loads(fig_path.read_text(encoding="utf-8"))
+        if line is None and figures is not None and proc.returncode == 0:
+            fig = json.loads(figures)
             fig.update(target=target, engine=engine, seconds=time.perf_counter() - t)
             line = "FIGURES " + json.dumps(fig)
         if line is None:  # the process itself died: a crash of the reader's C code

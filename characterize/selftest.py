@@ -113,7 +113,8 @@ def compact_plan(seed: int = 20261201) -> Plan:
 
 
 def full_plan(seed: int = 20261201) -> Plan:
-    """The large run: 400 resonators per method at 48 kHz, tabulated by regime."""
+    """The large run: 400 resonators per method at 48 kHz, tabulated by regime
+    (about 8 minutes on one core)."""
     return Plan("full", trials=400, seed=seed, rates_hz=(48000.0,), groups=True)
 
 

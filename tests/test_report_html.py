@@ -234,6 +234,9 @@ def test_pdf_has_the_expected_pages(report: dict) -> None:
     for i, pg in enumerate(reader.pages, start=1):
         assert f"page {i} of {expected}" in pg.extract_text()
     assert "jar-$x$" in reader.pages[1].extract_text()  # mathtext off: printed as written
+    text = " ".join(" ".join(pg.extract_text().split()) for pg in reader.pages)
+    assert "file not found" in text  # the failed item's reason, as in the HTML
+    assert "Cpk" in text and "Outliers" in text and "f0 control chart" in text
 
 
 def test_pdf_page_count_for_a_long_batch() -> None:

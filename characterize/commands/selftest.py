@@ -12,7 +12,7 @@ from ._errors import handles_errors
 @click.command()
 @click.option("--full", is_flag=True,
               help="The large run (400 resonators per method at 48 kHz, tables by regime; "
-                   "tens of minutes) instead of the compact one (under a minute).")
+                   "about 8 minutes) instead of the compact one (about 20 s).")
 @click.option("--json", "as_json", is_flag=True, help="Print the result as JSON.")
 @click.option("--seed", type=int, default=None,
               help="Seed of the simulated cases [default: a fixed seed, so runs repeat].")

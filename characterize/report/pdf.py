@@ -272,6 +272,15 @@ def _item_pages(pages: _Pages, ctx: dict[str, Any], out_dir: Path) -> None:
                 for it in items[p * ITEMS_PER_PAGE:(p + 1) * ITEMS_PER_PAGE]]
 
     reader = ThreadPoolExecutor(1)
+    try:
+        _draw_item_pages(pages, fig, slots, page_no, items, n_pages, reader, read)
+    finally:
+        reader.shutdown(wait=True, cancel_futures=True)
+        plt.close(fig)
+
+
+def _draw_item_pages(pages: _Pages, fig: Any, slots: list[Any], page_no: Any,
+                     items: list[dict[str, Any]], n_pages: int, reader: Any, read: Any) -> None:
     ahead = reader.submit(read, 0) if n_pages else None
     for p in range(n_pages):
         assert ahead is not None
@@ -299,8 +308,6 @@ def _item_pages(pages: _Pages, ctx: dict[str, Any], out_dir: Path) -> None:
                 ax.set_xlim(-0.5, img.shape[1] - 0.5)
                 ax.set_ylim(img.shape[0] - 0.5, -0.5)
         pages.save(fig)
-    reader.shutdown()
-    plt.close(fig)
 
 
 def _item_lines(it: dict[str, Any], width: int = 110, max_lines: int = 7) -> list[str]:
