@@ -33,6 +33,11 @@ POOR_FIT_F0_REL_STDERR = 0.01
 POOR_FIT_Q_REL_STDERR = 0.25
 #: The resonance must sit this many half-power half-widths f0/(2Q) inside the excited band.
 OUT_OF_BAND_HALF_WIDTHS = 4.0
+#: A fit within this many half-widths of the excited band's edge, and poor, is
+#: taken for a resonance outside the band (near-band-edge).
+BAND_EDGE_HALF_WIDTHS = 1.0
+#: Below this Q the statistics of the fit are not validated (low-q).
+LOW_Q = 4.0
 #: Window shorter than this many ringing time constants Q/(pi f0) biases Q low.
 MIN_WINDOW_TIME_CONSTANTS = 7.0
 #: Median per-bin SNR of H in the fit band (|H| over its noise) below which the fit
@@ -115,15 +120,39 @@ def check_clipping(reports: list[ClipReport], role: dict[int, str]) -> list[Flag
 
 
 def check_in_band(fit: FitResult, band_hz: tuple[float, float]) -> list[Flag]:
-    half = fit.f0_hz / (2 * fit.q)
-    lo = fit.f0_hz - OUT_OF_BAND_HALF_WIDTHS * half
-    hi = fit.f0_hz + OUT_OF_BAND_HALF_WIDTHS * half
+    # log-symmetric around f0, so that a low Q does not reach below 0 Hz
+    r = 1 + OUT_OF_BAND_HALF_WIDTHS / (2 * fit.q)
+    lo, hi = fit.f0_hz / r, fit.f0_hz * r
     if lo >= band_hz[0] and hi <= band_hz[1]:
         return []
     return [Flag("out-of-band", "warning",
                  f"the resonance ({lo:.1f} to {hi:.1f} Hz, {OUT_OF_BAND_HALF_WIDTHS:g} half-"
                  f"widths each side of f0) is not well inside the excited band "
                  f"{band_hz[0]:.1f} to {band_hz[1]:.1f} Hz: widen the sweep or the excitation")]
+
+
+def check_band_edge(fit: FitResult, band_hz: tuple[float, float]) -> list[Flag]:
+    """A fit that sits on the edge of the excited band and does not describe the
+    data: the resonance is most likely outside the band (an error: do not use it)."""
+    if not (math.isfinite(band_hz[0]) and math.isfinite(fit.f0_hz)):
+        return []
+    half = fit.f0_hz / (2 * fit.q)
+    at_edge = (fit.f0_hz - BAND_EDGE_HALF_WIDTHS * half <= band_hz[0]
+               or fit.f0_hz + BAND_EDGE_HALF_WIDTHS * half >= band_hz[1])
+    if not (at_edge and fit.reduced_chi2 > POOR_FIT_REDUCED_CHI2):
+        return []
+    return [Flag("near-band-edge", "error",
+                 f"the fitted resonance (f0 {fit.f0_hz:.1f} Hz, Q {fit.q:.2f}) sits on the edge "
+                 f"of the excited band {band_hz[0]:.1f} to {band_hz[1]:.1f} Hz and does not fit "
+                 "the data: the resonance is probably outside the band; extend the sweep")]
+
+
+def check_low_q(fit: FitResult) -> list[Flag]:
+    if fit.q >= LOW_Q:
+        return []
+    return [Flag("low-q", "info",
+                 f"Q {fit.q:.2f} is below {LOW_Q:g}, the lowest the self-test validates; the "
+                 "errors there rest on the chi-square scaling (see docs/quality.md)")]
 
 
 def check_window(tf: TransferFunction, fit: FitResult) -> list[Flag]:

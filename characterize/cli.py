@@ -14,6 +14,7 @@ import click
 
 from . import __version__
 from .commands._errors import handles_errors
+from .commands._params import Fraction, Quantity
 from .errors import InputError
 
 
@@ -40,44 +41,6 @@ class OneLineErrors(click.Group):
             click.echo(f"characterize: error: {exc.format_message()}", err=True)
             sys.exit(exc.exit_code)
         sys.exit(rv if isinstance(rv, int) else 0)
-
-
-class Fraction(click.ParamType):
-    """A fraction 0..1 or an explicit percent ("45 %")."""
-
-    name = "FRACTION"
-
-    def convert(self, value: Any, param: Any, ctx: Any) -> float:
-        from .units import parse_fraction
-
-        if isinstance(value, float):
-            return value
-        try:
-            return parse_fraction(value, "option", f"--{param.name}" if param else "value")
-        except InputError as exc:
-            self.fail(exc.expected, param, ctx)
-
-
-class Quantity(click.ParamType):
-    """A number with a unit ("101.325 kPa"), or a bare number in SI units."""
-
-    def __init__(self, dimension: str) -> None:
-        self.dimension = dimension
-        self.name = dimension.upper()
-
-    def convert(self, value: Any, param: Any, ctx: Any) -> float:
-        from .units import parse_quantity
-
-        if isinstance(value, float):
-            return value
-        try:
-            return float(value)
-        except ValueError:
-            pass
-        try:
-            return parse_quantity(value, self.dimension, "option", param.name if param else "")
-        except InputError as exc:
-            self.fail(exc.expected, param, ctx)
 
 
 @click.group(cls=OneLineErrors, context_settings={"help_option_names": ["-h", "--help"]})

@@ -70,6 +70,11 @@ class Sweep:
 
 def validate_params(p: SweepParams, source: str = "sweep") -> None:
     """Raise :class:`InputError` for impossible sweep settings."""
+    for name in ("start_hz", "stop_hz", "duration_s", "rate_hz", "level_dbfs",
+                 "fade_in_s", "fade_out_s", "tail_s"):
+        v = getattr(p, name)
+        if not math.isfinite(v):
+            raise InputError(source, name, f"must be a finite number, got {v!r}")
     nyq = p.rate_hz / 2
     if not (p.rate_hz > 0):
         raise InputError(source, "rate", f"must be > 0 Hz, got {p.rate_hz:g}")

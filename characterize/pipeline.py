@@ -33,12 +33,14 @@ from .audio import Recording, check_channel, check_not_silent, clip_report, read
 from .checks import (
     F0_TOLERANCE,
     Flag,
+    check_band_edge,
     check_clipping,
     check_drive,
     check_end_correction,
     check_f0_mismatch,
     check_fit_quality,
     check_in_band,
+    check_low_q,
     check_methods_agree,
     check_multiple_peaks,
     check_nonlinear_drive,
@@ -49,7 +51,8 @@ from .checks import (
 )
 from .errors import FitError, InputError
 from .fitting.fit import FitResult, fit_transfer
-from .physics.air import AirState, air_state
+from .physics.air import AirState
+from .physics.conditions import DEFAULT_AIR, resolve_air  # noqa: F401  (re-exported)
 from .physics.geometry import ResonatorObject, load_object
 from .physics.helmholtz import (
     PLAUSIBLE_END_CORRECTION_OVER_RADIUS,
@@ -60,8 +63,6 @@ from .physics.helmholtz import (
 )
 from .transfer import TransferFunction
 
-#: Air defaults when neither the object file nor the command line gives a value.
-DEFAULT_AIR = {"temperature_c": 20.0, "relative_humidity": 0.5, "pressure_pa": 101325.0}
 METHODS = ("auto", "sweep", "h1", "h2", "one-channel", "ringdown", "csv")
 #: Order of the complex polynomial background on the one-microphone paths.
 BACKGROUND_ORDER = 3
@@ -161,24 +162,6 @@ class Result:
                            list(PLAUSIBLE_END_CORRECTION_OVER_RADIUS)},
             "flags": [f.to_dict() for f in self.flags],
         }
-
-
-def resolve_air(obj: ResonatorObject | None, **cli: float | None
-                ) -> tuple[AirState, dict[str, str]]:
-    """Air state from defaults, then the object file's [air], then the command line."""
-    values = dict(DEFAULT_AIR)
-    sources = {k: "default" for k in values}
-    if obj is not None:
-        for k, v in obj.air.to_dict().items():
-            if v is not None and k in values:
-                values[k], sources[k] = float(v), "object file"
-    for k, v in cli.items():
-        if v is not None:
-            values[k], sources[k] = float(v), "command line"
-    try:
-        return air_state(**values), sources
-    except ValueError as exc:
-        raise InputError("air", None, str(exc)) from None
 
 
 def choose_method(method: str, n_channels: int | None, sweep: bool, excitation: bool,
@@ -446,6 +429,8 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
 
     flags += check_fit_quality(fit)
     flags += check_in_band(fit, tf.excited_band_hz)
+    flags += check_band_edge(fit, tf.excited_band_hz)
+    flags += check_low_q(fit)
     flags += check_window(tf, fit)
     flags += check_weighting(fit)
     flags += check_polarity(fit)

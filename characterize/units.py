@@ -80,19 +80,29 @@ def parse_quantity(
     if not unit:
         raise InputError(source, field, f"{text!r} has no unit; expected a {dimension} such as "
                          f"{_EXAMPLES[dimension]!r}")
-    ureg = _registry()
-    try:
-        q = ureg.Quantity(value, unit)
-        si = q.to(si_unit).magnitude
-    except Exception:  # pint raises several types: undefined unit, dimensionality...
-        raise InputError(source, field, f"{text!r} is not a {dimension} (expected e.g. "
-                         f"{_EXAMPLES[dimension]!r})") from None
+    common = _COMMON.get(dimension, {}).get(unit)
+    if common is not None:  # the usual units without loading pint (start-up time)
+        si = value * common
+    else:
+        ureg = _registry()
+        try:
+            q = ureg.Quantity(value, unit)
+            si = q.to(si_unit).magnitude
+        except Exception:  # pint raises several types: undefined unit, dimensionality...
+            raise InputError(source, field, f"{text!r} is not a {dimension} (expected e.g. "
+                             f"{_EXAMPLES[dimension]!r})") from None
     si = float(si)
     if not math.isfinite(si):
         raise InputError(source, field, f"{text!r} is not finite")
     if positive and si <= 0:
         raise InputError(source, field, f"{text!r} must be greater than zero")
     return si
+
+
+def _check_celsius(value_c: float, text: Any, source: str, field: str) -> float:
+    if not math.isfinite(value_c) or value_c <= -273.15:
+        raise InputError(source, field, f"{text!r} is below absolute zero or not finite")
+    return value_c
 
 
 def parse_temperature_c(text: Any, source: str, field: str) -> float:
@@ -111,6 +121,10 @@ def parse_temperature_c(text: Any, source: str, field: str) -> float:
         if not unit:
             raise InputError(source, field, f"{text!r} has no unit; expected e.g. '21 degC'")
         unit = {"C": "degC", "°C": "degC", "F": "degF", "°F": "degF"}.get(unit, unit)
+        if unit in ("degC", "celsius"):
+            return _check_celsius(value, text, source, field)
+        if unit == "K":
+            return _check_celsius(value - 273.15, text, source, field)
         ureg = _registry()
         try:
             value_c = float(ureg.Quantity(value, unit).to("degC").magnitude)
@@ -147,6 +161,25 @@ def parse_fraction(text: Any, source: str, field: str) -> float:
         raise InputError(source, field, f"{text!r} is outside 0..1 (write '45 %' for a percent)")
     return value
 
+
+#: Units common in object files, with their SI factors, read without pint (whose
+#: registry takes most of a second to build); pint reads everything else. The
+#: factors are exact by definition (SI Brochure, 9th ed., 2019; 1 in = 25.4 mm).
+_COMMON: dict[str, dict[str, float]] = {
+    "length": {"m": 1.0, "cm": 1e-2, "mm": 1e-3, "um": 1e-6, "µm": 1e-6, "in": 0.0254,
+               "inch": 0.0254, "meter": 1.0, "millimeter": 1e-3, "centimeter": 1e-2},
+    "volume": {"m**3": 1.0, "m^3": 1.0, "L": 1e-3, "l": 1e-3, "mL": 1e-6, "ml": 1e-6,
+               "cL": 1e-5, "dL": 1e-4, "cm**3": 1e-6, "cm^3": 1e-6, "cc": 1e-6,
+               "mm**3": 1e-9, "mm^3": 1e-9, "liter": 1e-3, "litre": 1e-3,
+               "milliliter": 1e-6, "millilitre": 1e-6},
+    "area": {"m**2": 1.0, "m^2": 1.0, "cm**2": 1e-4, "cm^2": 1e-4, "mm**2": 1e-6,
+             "mm^2": 1e-6},
+    "pressure": {"Pa": 1.0, "hPa": 100.0, "kPa": 1e3, "MPa": 1e6, "bar": 1e5,
+                 "mbar": 100.0},
+    "mass": {"kg": 1.0, "g": 1e-3, "mg": 1e-6},
+    "frequency": {"Hz": 1.0, "kHz": 1e3},
+    "time": {"s": 1.0, "ms": 1e-3, "min": 60.0},
+}
 
 _EXAMPLES = {
     "length": "18 mm",

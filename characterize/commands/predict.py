@@ -14,46 +14,9 @@ from typing import Any
 import click
 
 from ._errors import handles_errors
+from ._params import Fraction, Quantity
 
 PREDICTION_SCHEMA = "characterize.prediction/1"
-
-
-class _Fraction(click.ParamType):
-    """A fraction 0..1 or an explicit percent ("45 %")."""
-
-    name = "FRACTION"
-
-    def convert(self, value: Any, param: Any, ctx: Any) -> float:
-        from ..errors import InputError
-        from ..units import parse_fraction
-
-        if isinstance(value, float):
-            return value
-        try:
-            return parse_fraction(value, "option", f"--{param.name}" if param else "value")
-        except InputError as exc:
-            self.fail(exc.expected, param, ctx)
-
-
-class _Pressure(click.ParamType):
-    """A pressure with a unit ("101.3 kPa") or a bare number in Pa."""
-
-    name = "PRESSURE"
-
-    def convert(self, value: Any, param: Any, ctx: Any) -> float:
-        from ..errors import InputError
-        from ..units import parse_quantity
-
-        if isinstance(value, float):
-            return value
-        try:
-            return float(value)
-        except ValueError:
-            pass
-        try:
-            return parse_quantity(value, "pressure", "option", "--pressure")
-        except InputError as exc:
-            self.fail(exc.expected, param, ctx)
 
 
 class _Co2(click.ParamType):
@@ -71,27 +34,6 @@ class _Co2(click.ParamType):
             return parse_co2(value, "option", "--co2")
         except InputError as exc:
             self.fail(exc.expected, param, ctx)
-
-
-def resolve_air(obj: Any, **cli: float | None) -> tuple[Any, dict[str, str]]:
-    """Air from the defaults (20 degC, 50 % RH, 101.325 kPa, 400 ppm CO2),
-    then the object file's [air], then the command line."""
-    from ..errors import InputError
-    from ..physics.air import air_state
-
-    values = {"temperature_c": 20.0, "relative_humidity": 0.5, "pressure_pa": 101325.0,
-              "co2_fraction": 0.0004}
-    sources = {k: "default" for k in values}
-    for k, v in obj.air.to_dict().items():
-        if v is not None:
-            values[k], sources[k] = float(v), "object file"
-    for k, v in cli.items():
-        if v is not None:
-            values[k], sources[k] = float(v), "command line"
-    try:
-        return air_state(**values), sources
-    except ValueError as exc:
-        raise InputError("air", None, str(exc)) from None
 
 
 def prediction_document(obj: Any, air: Any, sources: dict[str, str], pred: Any) -> dict[str, Any]:
@@ -175,9 +117,9 @@ def prediction_text(obj: Any, air: Any, sources: dict[str, str], pred: Any) -> s
 @click.argument("object_path", metavar="OBJECT", type=click.Path(path_type=Path))
 @click.option("--temperature", "temperature_c", type=float, default=None,
               help="Air temperature (°C); overrides the object file.")
-@click.option("--humidity", "relative_humidity", type=_Fraction(), default=None,
+@click.option("--humidity", "relative_humidity", type=Fraction(), default=None,
               help="Relative humidity, 0..1 or '45 %'; overrides the object file.")
-@click.option("--pressure", "pressure_pa", type=_Pressure(), default=None,
+@click.option("--pressure", "pressure_pa", type=Quantity("pressure"), default=None,
               help="Static pressure ('101.3 kPa' or Pa); overrides the object file.")
 @click.option("--co2", "co2_fraction", type=_Co2(), default=None,
               help="CO2 ('400 ppm', '0.04 %' or a fraction); overrides the object file.")
@@ -200,6 +142,8 @@ def predict(object_path: Path, temperature_c: float | None, relative_humidity: f
         if p is not None:
             check_writable(p, force=force)
     obj = load_object(object_path)
+    from ..physics.conditions import resolve_air
+
     air, sources = resolve_air(obj, temperature_c=temperature_c,
                                relative_humidity=relative_humidity, pressure_pa=pressure_pa,
                                co2_fraction=co2_fraction)
