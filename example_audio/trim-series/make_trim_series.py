@@ -90,6 +90,10 @@ def main() -> None:
                           temperature_c=temp_c)
             doc = res.to_dict()
             doc["input"]["recording"] = f"{name}.flac (not bundled)"
+            # paths relative to this folder, not to the machine that made them
+            doc["input"]["sweep"] = "sweep-16k.wav"
+            if doc.get("object"):
+                doc["object"]["source_path"] = obj_path.name
             write_document(HERE / f"{name}.json", doc)
             rec.unlink()
             rows.append(f"{name},,{name}.json,,,{length_mm} mm,,after the fifth cut "
