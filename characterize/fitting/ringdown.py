@@ -31,6 +31,11 @@ END_ABOVE_NOISE_DB = 6.0
 SKIP_AFTER_PEAK_S = 0.002
 #: Shortest stretch fitted as a decay (s).
 MIN_DECAY_S = 0.002
+#: Samples handed to the matrix pencil for start values (its SVD grows as N^3).
+PENCIL_SAMPLES = 2400
+#: Pencil parameter (columns of the Hankel matrix) for the start values: below
+#: N/3, where Hua & Sarkar put the noise optimum, to keep the SVD cheap.
+PENCIL_PARAMETER = 300
 #: Largest number of samples handed to the fit per decay (decimated above).
 MAX_FIT_SAMPLES = 20000
 
@@ -64,7 +69,7 @@ def matrix_pencil(x: NDArray[np.float64], rate_hz: float, n_modes: int,
     """
     x = np.asarray(x, dtype=np.float64)
     n = x.size
-    p = pencil or n // 3
+    p = n // 3 if pencil is None else min(pencil, n // 3)  # ``pencil`` caps N/3
     p = int(min(max(p, n_modes + 1), n - n_modes - 1))
     y = np.lib.stride_tricks.sliding_window_view(x, p + 1)  # (n - p) x (p + 1) Hankel
     _, _, vh = np.linalg.svd(y, full_matrices=False)
@@ -132,7 +137,12 @@ def fit_decay(x: NDArray[np.float64], rate_hz: float, noise_rms: float,
     step = max(1, x.size // MAX_FIT_SAMPLES)
     xs = x[::step]
     fs = rate_hz / step
-    modes = matrix_pencil(xs[: min(xs.size, 4000)], fs, 4)
+    # start values: the matrix pencil on at most PENCIL_SAMPLES samples, strided
+    # to span the decay but keeping 4 samples per period of the dominant frequency
+    spec = np.abs(np.fft.rfft(xs * np.hanning(xs.size)))
+    f_dom = float(np.fft.rfftfreq(xs.size, 1 / fs)[int(np.argmax(spec[1:])) + 1])
+    stride = max(1, min(-(-xs.size // PENCIL_SAMPLES), int(fs / (4 * f_dom))))
+    modes = matrix_pencil(xs[::stride][:PENCIL_SAMPLES], fs / stride, 4, pencil=PENCIL_PARAMETER)
     if not modes:
         raise FitError("no damped oscillation found in the decay")
     f_mp, q_mp, a_mp = modes[0]
