@@ -436,7 +436,10 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
     flags += check_polarity(fit)
     flags += check_signal_quality(quality, tf.coherence is not None and not one_mic)
     flags += check_nonlinear_drive(quality)
-    if circle is not None and n_modes == 1:  # the circle is a single-mode cross-check
+    # the circle is a single-mode cross-check of data the oscillator describes as they
+    # are; a Welch estimate is smoothed by its window (the fit models that, the circle
+    # does not), so there the circle is reported but not used to flag
+    if circle is not None and n_modes == 1 and tf.kernel is None:
         flags += check_methods_agree(fit, circle.to_dict())
     if n_modes == 1 and band_hz is None:
         from .fitting.modes import find_resonances
