@@ -70,6 +70,12 @@ def pressure_from_spl_pa(level_db: float) -> float:
     r"""RMS pressure of a sound pressure level: :math:`p = p_0 10^{L/20}`, p0 = 20 uPa.
 
     94 dB gives 1.00237 Pa and 114 dB 10.0237 Pa (physics sheet section 10).
+
+    References
+    ----------
+    ISO 80000-8:2020, *Quantities and units -- Part 8: Acoustics* (sound pressure
+    level, reference 20 uPa); IEC 61672-1:2013, *Electroacoustics -- Sound level
+    meters -- Part 1: Specifications* (both from memory).
     """
     if isinstance(level_db, bool) or not isinstance(level_db, (int, float)) or not math.isfinite(
             level_db):

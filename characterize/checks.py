@@ -250,9 +250,3 @@ def check_drive(drive: dict[str, Any]) -> list[Flag]:
                  f"moves {1000 * drive['displacement_m']:.2f} mm, "
                  f"{drive['displacement_over_diameter']:.2f} of the neck diameter: the flow "
                  "is nonlinear, so the fitted Q depends on the level; measure 10 dB lower")]
-
-
-def worst_severity(flags: list[Flag]) -> str | None:
-    if not flags:
-        return None
-    return max(flags, key=lambda f: SEVERITIES.index(f.severity)).severity

@@ -75,6 +75,13 @@ def validate_params(p: SweepParams, source: str = "sweep") -> None:
         v = getattr(p, name)
         if not math.isfinite(v):
             raise InputError(source, name, f"must be a finite number, got {v!r}")
+    from .audio import MAX_DURATION_S, MAX_SAMPLES
+
+    total_s = p.duration_s + p.tail_s
+    if total_s > MAX_DURATION_S or total_s * p.rate_hz > MAX_SAMPLES:
+        raise InputError(source, "duration", f"sweep plus tail ({total_s:g} s at "
+                         f"{p.rate_hz:g} Hz) is longer than fit reads back "
+                         f"({MAX_SAMPLES:,} samples, {MAX_DURATION_S:g} s)")
     nyq = p.rate_hz / 2
     if not (p.rate_hz > 0):
         raise InputError(source, "rate", f"must be > 0 Hz, got {p.rate_hz:g}")

@@ -275,6 +275,12 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
         raise InputError("--tolerance", None, f"must be a fraction between 0 and 1, got {tolerance}")
     if modes is not None and (modes < 1 or modes > 6):
         raise InputError("--modes", None, f"must be 1 to 6, got {modes}")
+    if window_s is not None and not (math.isfinite(window_s) and window_s > 0):
+        raise InputError("--window", None, f"must be a positive number of ms, got "
+                         f"{window_s * 1000:g}")
+    if window_s is not None and sweep_path is None:
+        raise InputError("--window", None, "applies only with --sweep (the impulse-response "
+                         "window of the deconvolution paths)")
     if band_hz is not None and not (0 < band_hz[0] < band_hz[1]):
         raise InputError("--band", None, f"need 0 < LO < HI, got {band_hz[0]:g} {band_hz[1]:g}")
     if sweep_path is not None and excitation_path is not None:

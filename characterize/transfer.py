@@ -21,7 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from .errors import FitError
+from .errors import FitError, InputError
 from .excitation import Sweep, band_filter, inverse_spectrum, usable_band
 
 #: Time before the direct sound's peak kept in the window (s); also the taper-in.
@@ -451,9 +451,10 @@ def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64] | N
     else:
         length = int(round(window_s * rate_hz))
         if length < 4 * pre or length > l_max:
-            raise FitError(f"window of {window_s * 1000:.0f} ms is outside what this recording "
-                           f"allows ({4 * pre / rate_hz * 1000:.0f} to "
-                           f"{l_max / rate_hz * 1000:.0f} ms)")
+            raise InputError("--window", None,
+                             f"{window_s * 1000:.0f} ms is outside what this recording allows "
+                             f"({4 * pre / rate_hz * 1000:.0f} to "
+                             f"{l_max / rate_hz * 1000:.0f} ms)")
     reflection_s = None
     if one_mic and window_s is None and f0_est is not None:
         refl = first_reflection(ir_in, onset, rate_hz, 4 * f0_est, usable_band(p)[1])

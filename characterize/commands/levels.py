@@ -93,8 +93,16 @@ def levels(manifest: Path, out_dir: Path | None, as_json: bool, force: bool) -> 
     from ..errors import FitError, InputError
     from ..fileio import check_writable
     from ..report.document import to_json, write_document
-    from ..tuning import (check_points, fit_power_law, is_force_table, level_points,
-                          level_study, measure_rows, read_force_table, read_manifest)
+    from ..tuning import (
+        check_points,
+        fit_power_law,
+        is_force_table,
+        level_points,
+        level_study,
+        measure_rows,
+        read_force_table,
+        read_manifest,
+    )
 
     targets = []
     if out_dir is not None:

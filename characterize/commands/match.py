@@ -57,7 +57,12 @@ def match(results: tuple[Path, ...], count: int, target_hz: float, by: str, alte
     from ..report.document import to_json
     from ..tuning import load_result, match_sets
 
-    docs = [load_result(p) for p in results]
+    # the same document named twice (overlapping globs, a folder and its result.json)
+    # counts once
+    unique: dict[Path, Path] = {}
+    for p in results:
+        unique.setdefault((p / "result.json" if p.is_dir() else p).resolve(), p)
+    docs = [load_result(p) for p in unique.values()]
     m = match_sets(docs, count, target_hz, by, alternatives=alternatives)
     if as_json:
         click.echo(to_json(m.to_dict()), nl=False)

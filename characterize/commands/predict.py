@@ -134,10 +134,13 @@ def predict(object_path: Path, temperature_c: float | None, relative_humidity: f
             pressure_pa: float | None, co2_fraction: float | None, as_json: bool,
             out_path: Path | None, sketch_path: Path | None, force: bool) -> None:
     """Predict f0, the next modes and Q of the resonator in OBJECT (TOML)."""
+    from ..errors import InputError
     from ..fileio import check_writable
     from ..physics.geometry import load_object
     from ..physics.helmholtz import predict as predict_object
 
+    if sketch_path is not None and sketch_path.suffix.lower() not in (".png", ".svg", ".pdf"):
+        raise InputError(str(sketch_path), "--sketch", "give a .png, .svg or .pdf file name")
     for p in (out_path, sketch_path):
         if p is not None:
             check_writable(p, force=force)

@@ -80,8 +80,7 @@ def series(manifest: Path, vary: str, as_json: bool, out_dir: Path | None, force
     from ..errors import InputError
     from ..fileio import check_writable
     from ..report.document import to_json, write_document
-    from ..tuning import (VARY, SeriesPoint, check_points, fit_series, measure_rows,
-                          read_manifest)
+    from ..tuning import VARY, SeriesPoint, check_points, fit_series, measure_rows, read_manifest
 
     column, kind = VARY[vary]
     targets = []

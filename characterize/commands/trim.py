@@ -11,8 +11,9 @@ from ._errors import handles_errors
 
 
 def _pm(value: float, stderr: float, decimals: int = 2) -> str:
-    """'7.67 ± 0.00031': the value to fixed decimals, the error to two significant digits."""
-    return f"{value:.{decimals}f} ± {stderr:.2g}"
+    from ..report.text import pm
+
+    return pm(value, stderr, decimals)
 
 
 def _text(a: Any) -> str:

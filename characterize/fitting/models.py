@@ -48,6 +48,30 @@ def inside_outside(freqs_hz: NDArray[np.float64], f0_hz: float, q: float, gain: 
 
 
 def half_power_band(f0_hz: float, q: float) -> tuple[float, float]:
-    """Half-power band of the resonance, f0 (sqrt(1 + 1/(4Q^2)) -+ 1/(2Q)) (Hz)."""
+    """Half-power band of the band-pass form (j f/(Q f0)) R(f), where its power is
+    half its peak:
+
+    .. math::
+
+        f_{1,2} = f_0\left(\sqrt{1 + \frac{1}{4Q^2}} \mp \frac{1}{2Q}\right),
+        \qquad f_2 - f_1 = f_0/Q
+
+    Parameters
+    ----------
+    f0_hz : float
+        Resonance frequency (Hz).
+    q : float
+        Quality factor.
+
+    Returns
+    -------
+    (f1_hz, f2_hz) : tuple of float
+        Lower and upper half-power frequencies (Hz).
+
+    References
+    ----------
+    L.E. Kinsler, A.R. Frey, A.B. Coppens, J.V. Sanders, *Fundamentals of Acoustics*,
+    4th ed. (2000), §1.10 (forced oscillator; section from memory).
+    """
     r = np.sqrt(1 + 1 / (4 * q * q))
     return float(f0_hz * (r - 1 / (2 * q))), float(f0_hz * (r + 1 / (2 * q)))

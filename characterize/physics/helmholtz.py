@@ -37,6 +37,7 @@ from .radiation import (
     FLANGED_END_FACTOR,
     PISTON_END_FACTOR,
     UNFLANGED_END_FACTOR,
+    _positive,
     end_correction_m,
     flanged_rectangle_end_correction_m,
     ingard_inner_end_correction_m,
@@ -89,14 +90,6 @@ MAX_MODES = 5
 #: are unknown (up to about 3 % for squat or narrow cavities) -> 3.5 %.
 F0_TOLERANCE_BY_MODEL = {"distributed": 0.02, "tube-distributed": 0.02,
                          "sphere-midpoint": 0.025, "corrected-lumped": 0.035}
-
-
-def _positive(**values: float) -> None:
-    for name, value in values.items():
-        if isinstance(value, bool) or not isinstance(value, (int, float)):
-            raise ValueError(f"{name} must be a number, got {value!r}")
-        if not (math.isfinite(value) and value > 0):
-            raise ValueError(f"{name} must be finite and > 0, got {value!r}")
 
 
 @dataclass(frozen=True, slots=True)

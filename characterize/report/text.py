@@ -5,6 +5,14 @@ from __future__ import annotations
 from typing import Any
 
 
+def pm(value: float, stderr: float | None, decimals: int = 2) -> str:
+    """'7.67 ± 0.00031': the value to fixed decimals, the error to two significant
+    digits (so a small error does not print as 0.00)."""
+    if stderr is None:
+        return f"{value:.{decimals}f}"
+    return f"{value:.{decimals}f} ± {stderr:.2g}"
+
+
 def summary(doc: dict[str, Any]) -> str:
     """A short summary from a result document (see docs/result-schema.md)."""
     fit = doc["fit"]
@@ -19,8 +27,8 @@ def summary(doc: dict[str, Any]) -> str:
         where.append(f"{inp['sample_rate_hz']:g} Hz")
     lines = [
         f"{inp['recording']}: " + ", ".join(where),
-        f"  f0   = {fit['f0_hz']:.3f} ± {fit['f0_stderr_hz']:.3f} Hz",
-        f"  Q    = {fit['q']:.2f} ± {fit['q_stderr']:.2f}",
+        f"  f0   = {pm(fit['f0_hz'], fit['f0_stderr_hz'], 3)} Hz",
+        f"  Q    = {pm(fit['q'], fit['q_stderr'])}",
     ]
     if fit.get("method") == "damped-sinusoid":
         decays = fit.get("decays", [])
@@ -35,8 +43,8 @@ def summary(doc: dict[str, Any]) -> str:
             + ("" if fit.get("weighting") != "residuals" else " (errors from the residuals)"),
         ]
         if len(fit.get("modes") or []) > 1:
-            lines += [f"  mode {k + 1}: f0 = {m['f0_hz']:.3f} ± {m['f0_stderr_hz']:.3f} Hz, "
-                      f"Q = {m['q']:.2f} ± {m['q_stderr']:.2f}"
+            lines += [f"  mode {k + 1}: f0 = {pm(m['f0_hz'], m['f0_stderr_hz'], 3)} Hz, "
+                      f"Q = {pm(m['q'], m['q_stderr'])}"
                       for k, m in enumerate(fit["modes"])]
     lines += [
         f"  air  {air['temperature_c']:.1f} °C, RH {100 * air['relative_humidity']:.0f} %, "
@@ -45,12 +53,13 @@ def summary(doc: dict[str, Any]) -> str:
     pred, der = doc.get("prediction"), doc.get("derived")
     if pred is not None and der is not None:
         rel = fit["f0_hz"] / pred["f0_hz"] - 1
+        leff = pm(1000 * der["effective_neck_length_m"],
+                  1000 * der["effective_neck_length_stderr_m"])
         lines += [
             f"  predicted f0 = {pred['f0_hz']:.2f} Hz (measured {100 * rel:+.2f} %), "
             f"L_eff = {1000 * pred['effective_neck_length_m']:.2f} mm",
-            f"  measured L_eff = {1000 * der['effective_neck_length_m']:.2f} ± "
-            f"{1000 * der['effective_neck_length_stderr_m']:.2f} mm, end correction "
-            f"{1000 * der['end_correction_m']:.2f} mm = "
+            f"  measured L_eff = {leff} mm, "
+            f"end correction {1000 * der['end_correction_m']:.2f} mm = "
             f"{der['end_correction_over_radius']:.2f} neck radii",
         ]
     flags = doc.get("flags", [])
