@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 from scipy import signal
 
-from characterize.errors import FitError
+from characterize.errors import InputError
 from characterize.fitting.fit import auto_band
 from characterize.simulate import Setup, simulate, true_transfer
 from characterize.transfer import cross_spectral_transfer, find_onset, sweep_transfer
@@ -143,7 +143,8 @@ class TestSweepTransfer:
     def test_window_longer_than_recording_allows_is_refused(self) -> None:
         setup = Setup(f0_hz=500.0, q=20.0, snr_db=40.0)
         data, sweep = simulate(setup, 0)
-        with pytest.raises(FitError, match="window"):
+        # a window the recording cannot hold is a bad --window option (exit 2)
+        with pytest.raises(InputError, match="window"):
             sweep_transfer(data[:, 0], data[:, 1], setup.rate_hz, sweep, window_s=60.0)
 
     def test_polarity_and_delay_survive_the_ratio(self) -> None:

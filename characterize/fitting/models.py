@@ -48,7 +48,7 @@ def inside_outside(freqs_hz: NDArray[np.float64], f0_hz: float, q: float, gain: 
 
 
 def half_power_band(f0_hz: float, q: float) -> tuple[float, float]:
-    """Half-power band of the band-pass form (j f/(Q f0)) R(f), where its power is
+    r"""Half-power band of the band-pass form (j f/(Q f0)) R(f), where its power is
     half its peak:
 
     .. math::
