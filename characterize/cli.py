@@ -14,7 +14,7 @@ import click
 
 from . import __version__
 from .commands._errors import handles_errors
-from .commands._params import Fraction, Quantity
+from .commands._params import Quantity, air_options
 from .errors import InputError
 
 
@@ -120,12 +120,7 @@ def sweep(out: Path, force: bool, **kw: Any) -> None:
               help="Channel (from 1) of the microphone just outside the mouth.")
 @click.option("--band", type=(float, float), default=None, metavar="LO HI",
               help="Fit exactly this band (Hz); default: found around the peak.")
-@click.option("--temperature", "temperature_c", type=float, default=None,
-              help="Air temperature (°C); overrides the object file.")
-@click.option("--humidity", "relative_humidity", type=Fraction(), default=None,
-              help="Relative humidity, 0..1 or '45 %'; overrides the object file.")
-@click.option("--pressure", "pressure_pa", type=Quantity("pressure"), default=None,
-              help="Static pressure ('101.3 kPa' or Pa); overrides the object file.")
+@air_options
 @click.option("--tolerance", type=float, default=None,
               help="f0 mismatch that raises a warning, as a fraction [default: what the "
                    "geometry model promises for the shape, 0.02 to 0.035].")

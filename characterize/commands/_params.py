@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from typing import Any
 
 import click
@@ -46,3 +47,16 @@ class Quantity(click.ParamType):
                                   f"--{param.name.replace('_', '-')}" if param else "")
         except InputError as exc:
             self.fail(exc.expected, param, ctx)
+
+
+def air_options(fn: Callable[..., Any]) -> Callable[..., Any]:
+    """--temperature, --humidity and --pressure: the air a measurement was made
+    in, overriding the object file's [air] (see physics.conditions.resolve_air)."""
+    fn = click.option("--pressure", "pressure_pa", type=Quantity("pressure"), default=None,
+                      help="Static pressure ('101.3 kPa' or Pa); overrides the object file."
+                      )(fn)
+    fn = click.option("--humidity", "relative_humidity", type=Fraction(), default=None,
+                      help="Relative humidity, 0..1 or '45 %'; overrides the object file.")(fn)
+    fn = click.option("--temperature", "temperature_c", type=float, default=None,
+                      help="Air temperature (°C); overrides the object file.")(fn)
+    return fn

@@ -43,9 +43,9 @@ def _level_text(s: Any) -> str:
         lines.append(f"  {p.id:<16} {p.spl_db:>9.1f} {p.f0_hz:>10.3f} ± {p.f0_stderr_hz:<5.3f} "
                      f"{p.q:>7.2f} ± {p.q_stderr:<4.2f} {p.displacement_over_diameter:>8.4f} "
                      f"{t:>6.2f}")
-    if s.flags:
-        lines.append("  flags:")
-        lines += [f"    [{f.severity}] {f.code}: {f.message}" for f in s.flags]
+    from ..report.text import flag_lines
+
+    lines += flag_lines(s.flags)
     return "\n".join(lines)
 
 
@@ -60,9 +60,9 @@ def _power_text(p: Any) -> str:
         f"  expected for a second-order effect (common practice): n = 2, tenfold per 10 dB; "
         f"the fit is {verdict} it ({p.z_vs_expected:+.1f} standard errors)",
     ]
-    if p.flags:
-        lines.append("  flags:")
-        lines += [f"    [{f.severity}] {f.code}: {f.message}" for f in p.flags]
+    from ..report.text import flag_lines
+
+    lines += flag_lines(p.flags)
     return "\n".join(lines)
 
 

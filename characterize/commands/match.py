@@ -24,9 +24,9 @@ def _text(m: Any) -> str:
              f"  best:   {_describe(m.best, m.target_f0_hz)}"]
     for i, alt in enumerate(m.alternatives, 1):
         lines.append(f"  alt {i}:  {_describe(alt, m.target_f0_hz)}")
-    if m.flags:
-        lines.append("  flags:")
-        lines += [f"    [{f.severity}] {f.code}: {f.message}" for f in m.flags]
+    from ..report.text import flag_lines
+
+    lines += flag_lines(m.flags)
     return "\n".join(lines)
 
 

@@ -14,7 +14,7 @@ from typing import Any
 import click
 
 from ._errors import handles_errors
-from ._params import Fraction, Quantity
+from ._params import air_options
 
 PREDICTION_SCHEMA = "characterize.prediction/1"
 
@@ -115,12 +115,7 @@ def prediction_text(obj: Any, air: Any, sources: dict[str, str], pred: Any) -> s
 
 @click.command()
 @click.argument("object_path", metavar="OBJECT", type=click.Path(path_type=Path))
-@click.option("--temperature", "temperature_c", type=float, default=None,
-              help="Air temperature (°C); overrides the object file.")
-@click.option("--humidity", "relative_humidity", type=Fraction(), default=None,
-              help="Relative humidity, 0..1 or '45 %'; overrides the object file.")
-@click.option("--pressure", "pressure_pa", type=Quantity("pressure"), default=None,
-              help="Static pressure ('101.3 kPa' or Pa); overrides the object file.")
+@air_options
 @click.option("--co2", "co2_fraction", type=_Co2(), default=None,
               help="CO2 ('400 ppm', '0.04 %' or a fraction); overrides the object file.")
 @click.option("--json", "as_json", is_flag=True, help="Print the prediction document (JSON).")

@@ -52,9 +52,9 @@ def _text(s: Any) -> str:
         mark = "  outlier" if t == t and abs(t) > 3 else ""
         lines.append(f"  {p.id:<16} {p.value * scale:>6.2f} {unit} {p.f0_hz:>10.3f} ± "
                      f"{p.f0_stderr_hz:<5.3f} {p.temperature_c:>7.1f} {r:>8.2f}σ {t:>6.2f}{mark}")
-    if s.flags:
-        lines.append("  flags:")
-        lines += [f"    [{f.severity}] {f.code}: {f.message}" for f in s.flags]
+    from ..report.text import flag_lines
+
+    lines += flag_lines(s.flags)
     return "\n".join(lines)
 
 

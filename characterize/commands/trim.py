@@ -55,9 +55,9 @@ def _text(a: Any) -> str:
         lines.append(f"  bore:     {verb} "
                      f"{_pm(d.new_diameter_m * mm, d.new_diameter_stderr_m * mm)} mm "
                      f"(from {a.diameter_m * mm:.2f} mm)")
-    if a.flags:
-        lines.append("  flags:")
-        lines += [f"    [{f.severity}] {f.code}: {f.message}" for f in a.flags]
+    from ..report.text import flag_lines
+
+    lines += flag_lines(a.flags)
     return "\n".join(lines)
 
 

@@ -5,6 +5,15 @@ from __future__ import annotations
 from typing import Any
 
 
+def flag_lines(flags: list[Any], none: bool = False) -> list[str]:
+    """The '  flags:' block of a text summary; ``flags`` are Flag objects or their
+    dicts. With ``none``, an empty list prints '  flags: none'."""
+    if not flags:
+        return ["  flags: none"] if none else []
+    rows = [f if isinstance(f, dict) else f.to_dict() for f in flags]
+    return ["  flags:"] + [f"    [{f['severity']}] {f['code']}: {f['message']}" for f in rows]
+
+
 def pm(value: float, stderr: float | None, decimals: int = 2) -> str:
     """'7.67 ± 0.00031': the value to fixed decimals, the error to two significant
     digits (so a small error does not print as 0.00)."""
@@ -62,10 +71,5 @@ def summary(doc: dict[str, Any]) -> str:
             f"end correction {1000 * der['end_correction_m']:.2f} mm = "
             f"{der['end_correction_over_radius']:.2f} neck radii",
         ]
-    flags = doc.get("flags", [])
-    if flags:
-        lines.append("  flags:")
-        lines += [f"    [{f['severity']}] {f['code']}: {f['message']}" for f in flags]
-    else:
-        lines.append("  flags: none")
+    lines += flag_lines(doc.get("flags", []), none=True)
     return "\n".join(lines)
