@@ -68,9 +68,14 @@ class Recording:
         return self.n_samples / self.sample_rate_hz
 
     def channel(self, number: int) -> NDArray[np.float64]:
-        """Samples of 1-based channel ``number`` as float64."""
+        """Samples of 1-based channel ``number`` as float64 (a copy)."""
         check_channel(self, number, "channel")
         return np.asarray(self.data[:, number - 1], dtype=np.float64)
+
+    def view(self, number: int) -> NDArray[np.floating]:
+        """Samples of 1-based channel ``number`` as stored (float32), no copy."""
+        check_channel(self, number, "channel")
+        return self.data[:, number - 1]
 
 
 def read_audio(path: str | Path, *, min_channels: int = 1) -> Recording:

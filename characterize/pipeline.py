@@ -339,7 +339,9 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
         tf = read_transfer_csv(transfer_path)
     else:
         assert rec is not None
-        y_in = rec.channel(inside)
+        # float64 copies only where the whole signal is transformed at once; the
+        # cross-spectral path reads the float32 samples block by block
+        y_in = rec.channel(inside) if chosen not in ("h1", "h2") else rec.view(inside)
         if chosen in ("sweep", "one-channel") and sweep_path is not None:
             from .excitation import load_sweep
 
@@ -370,7 +372,7 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
         else:
             from .transfer import cross_spectral_transfer
 
-            tf = cross_spectral_transfer(y_in, rec.channel(outside), rec.sample_rate_hz,
+            tf = cross_spectral_transfer(y_in, rec.view(outside), rec.sample_rate_hz,
                                          estimator=chosen)
     if band_hz is not None:
         f = tf.freqs_hz
