@@ -33,7 +33,6 @@ import json
 import math
 import os
 import re
-import tomllib
 from collections.abc import Callable, Sequence
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
@@ -41,6 +40,7 @@ from typing import Any
 
 from . import SCHEMA, __version__
 from .errors import FitError, InputError
+from .fileio import read_toml
 
 #: Schema of the batch summary (summary.json) and of an item's failure document.
 BATCH_SCHEMA = "characterize.batch/1"
@@ -259,20 +259,7 @@ def read_spec(path: str | os.PathLike[str]) -> Spec:
 
     p = Path(path)
     source = str(p)
-    try:
-        raw = p.read_bytes()
-    except FileNotFoundError:
-        raise InputError(source, None, "file not found") from None
-    except IsADirectoryError:
-        raise InputError(source, None, "is a directory, expected a spec file (TOML)") from None
-    except OSError as exc:
-        raise InputError(source, None, f"cannot read: {exc.strerror or exc}") from None
-    try:
-        data = tomllib.loads(raw.decode("utf-8"))
-    except UnicodeDecodeError as exc:
-        raise InputError(source, None, f"not UTF-8 text (bad byte at offset {exc.start})") from None
-    except tomllib.TOMLDecodeError as exc:
-        raise InputError(source, None, f"not valid TOML: {' '.join(str(exc).split())}") from None
+    data = read_toml(p, "a spec file")
     _check_keys(data, "", source)
     name = data.get("name", p.stem)
     if not isinstance(name, str):

@@ -16,13 +16,12 @@ Sensitivities are in full scale per pascal (FS/Pa): p(t) = x(t) / K.
 from __future__ import annotations
 
 import math
-import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from .errors import InputError
-from .fileio import atomic_write_text, check_writable
+from .fileio import atomic_write_text, check_writable, read_toml
 
 if TYPE_CHECKING:
     import numpy as np
@@ -518,16 +517,7 @@ def read_calibration(path: str | Path) -> Calibration:
         Missing, unreadable or malformed file (one line naming the field).
     """
     source = str(path)
-    try:
-        text = Path(path).read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError(source, None, "file not found") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(source, None, f"cannot read calibration file: {exc}") from None
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise InputError(source, None, f"not valid TOML: {' '.join(str(exc).split())}") from None
+    data = read_toml(path, "a calibration file")
     if data.get("schema") != SCHEMA:
         raise InputError(source, "schema", f"expected {SCHEMA!r}, got {data.get('schema')!r} "
                          "(write the file with characterize calibrate)")

@@ -9,7 +9,6 @@ swept-sine technique", AES 108th Convention, preprint 5093 (2000).
 from __future__ import annotations
 
 import math
-import tomllib
 from dataclasses import asdict, dataclass
 from pathlib import Path
 
@@ -151,13 +150,10 @@ def sidecar_text(params: SweepParams) -> str:
 
 def read_sidecar(path: str | Path) -> SweepParams:
     """Read a sweep sidecar TOML; :class:`InputError` names the missing field."""
+    from .fileio import read_toml
+
     p = Path(path)
-    try:
-        data = tomllib.loads(p.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(str(p), None, f"cannot read sidecar: {exc}") from None
-    except tomllib.TOMLDecodeError as exc:
-        raise InputError(str(p), None, f"not valid TOML ({exc})") from None
+    data = read_toml(p, "a sweep sidecar")
     table = data.get("sweep", data)
     if not isinstance(table, dict):
         raise InputError(str(p), "sweep", f"expected a [sweep] table, got {table!r}")

@@ -7,6 +7,7 @@ import stat
 import tempfile
 from collections.abc import Callable
 from pathlib import Path
+from typing import Any
 
 from .errors import InputError
 
@@ -99,3 +100,29 @@ def atomic_write_text(path: str | os.PathLike[str], text: str) -> Path:
             fh.write(text)
 
     return atomic_write(path, _w)
+
+
+def read_toml(path: str | os.PathLike[str], what: str) -> dict[str, Any]:
+    """Read a UTF-8 TOML file; one-line :class:`InputError` naming the file for a
+    missing or unreadable file, a directory, bad bytes or bad TOML (with
+    tomllib's line and column). ``what`` names the kind of file in messages."""
+    import tomllib
+
+    source = str(path)
+    try:
+        raw = Path(path).read_bytes()
+    except FileNotFoundError:
+        raise InputError(source, None, "file not found") from None
+    except IsADirectoryError:
+        raise InputError(source, None, f"is a directory, expected {what} (TOML)") from None
+    except OSError as exc:
+        raise InputError(source, None, f"cannot read file: {exc.strerror or exc}") from None
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise InputError(source, None, f"not UTF-8 text (bad byte at offset {exc.start}); "
+                         "expected a TOML file") from None
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(source, None, f"not valid TOML: {' '.join(str(exc).split())}") from None

@@ -52,7 +52,6 @@ from __future__ import annotations
 
 import difflib
 import math
-import tomllib
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -924,24 +923,8 @@ def load_object(path: str | Path) -> ResonatorObject:
         gives tomllib's line and column), or a field is missing, unknown,
         malformed or inconsistent with another.
     """
+    from ..fileio import read_toml
+
     source = str(path)
-    try:
-        raw = Path(path).read_bytes()
-    except FileNotFoundError:
-        raise InputError(source, None, "file not found") from None
-    except IsADirectoryError:
-        raise InputError(source, None, "is a directory, expected an object file (TOML)") from None
-    except OSError as exc:
-        raise InputError(source, None, f"cannot read file: {exc.strerror or exc}") from None
-    try:
-        text = raw.decode("utf-8")
-    except UnicodeDecodeError as exc:
-        raise InputError(
-            source, None, f"not UTF-8 text (bad byte at offset {exc.start}); expected a TOML file"
-        ) from None
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        message = " ".join(str(exc).split())
-        raise InputError(source, None, f"not valid TOML: {message}") from None
+    data = read_toml(path, "an object file")
     return parse_object(data, source)
