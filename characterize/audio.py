@@ -169,7 +169,7 @@ def clip_report(rec: Recording, number: int) -> ClipReport:
     samples at or within ``CLIP_MARGIN_DB`` of full scale; for float formats any
     sample beyond +-1 counts as well (it would clip on playback or conversion).
     """
-    x = np.abs(np.asarray(rec.data[:, number - 1], dtype=np.float64))
+    x = np.abs(rec.data[:, number - 1])  # float32, as stored: no float64 copy
     peak = float(np.max(x))
     peak_dbfs = 20 * np.log10(peak) if peak > 0 else -np.inf
     near = x >= 10 ** (-CLIP_MARGIN_DB / 20)

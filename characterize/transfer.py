@@ -544,8 +544,9 @@ def hann_power_kernel(nperseg: int, rate_hz: float, oversample: int = 16,
     return k * rate_hz / n_big, weights
 
 
-#: Welch segments transformed at once (bounds the memory of the cross-spectra).
-WELCH_BLOCK = 64
+#: Samples transformed at once in the Welch loop (bounds its memory: about 8 bytes
+#: times this, for each of a few arrays).
+WELCH_BLOCK_SAMPLES = 2**21
 
 
 def welch_spectra(x: NDArray[np.floating], y: NDArray[np.floating], rate_hz: float,
@@ -573,8 +574,9 @@ def welch_spectra(x: NDArray[np.floating], y: NDArray[np.floating], rate_hz: flo
     gxy = np.zeros(nf, dtype=np.complex128)
     gxx = np.zeros(nf)
     gyy = np.zeros(nf)
-    for b0 in range(0, n_seg, WELCH_BLOCK):
-        starts = (np.arange(b0, min(n_seg, b0 + WELCH_BLOCK)) * step)[:, None] + np.arange(m)
+    block = max(1, WELCH_BLOCK_SAMPLES // m)
+    for b0 in range(0, n_seg, block):
+        starts = (np.arange(b0, min(n_seg, b0 + block)) * step)[:, None] + np.arange(m)
         xs = np.asarray(x[starts], dtype=np.float64)
         ys = np.asarray(y[starts], dtype=np.float64)
         xs -= xs.mean(axis=1, keepdims=True)
