@@ -356,10 +356,8 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
             y_out = rec.channel(outside) if chosen == "sweep" else None
             tf = sweep_transfer(y_in, y_out, rec.sample_rate_hz, sweep, window_s=window_s)
         elif chosen == "one-channel":
-            from .audio import read_audio as _read
-
             assert excitation_path is not None
-            exc = _read(excitation_path)
+            exc = read_audio(excitation_path)
             if exc.sample_rate_hz != rec.sample_rate_hz:
                 raise InputError(str(excitation_path), "sample rate",
                                  f"excitation is at {exc.sample_rate_hz:g} Hz but the recording "
@@ -530,7 +528,7 @@ def _main_mode_result(mf: Any, tf: TransferFunction) -> FitResult:
         f0_hz=m.f0_hz, f0_stderr_hz=m.f0_stderr_hz, q=m.q, q_stderr=m.q_stderr, gain=gain,
         gain_stderr=m.gain_stderr, delay_s=mf.delay_s, delay_stderr_s=mf.delay_stderr_s,
         polarity_inverted=bool(mf.sign < 0), band_hz=mf.band_hz, n_points=mf.n_points,
-        chi2=mf.reduced_chi2 * max(1, 2 * mf.n_points), reduced_chi2=mf.reduced_chi2,
+        chi2=mf.chi2, reduced_chi2=mf.reduced_chi2,
         stderr_scale=mf.stderr_scale, weighting=mf.weighting, correlation_f0_q=math.nan,
         nfev=0, method="multi-mode" if len(mf.modes) > 1 else "oscillator-with-background")
 

@@ -57,6 +57,7 @@ class ModesFit:
     reduced_chi2: float
     stderr_scale: float
     weighting: str
+    chi2: float = math.nan
 
     def model(self, freqs_hz: NDArray[np.float64]) -> NDArray[np.complex128]:
         p = _pack(self)
@@ -263,4 +264,4 @@ def fit_modes(tf: TransferFunction, n_modes: int, *, background_order: int = -1,
                for j in range(n_bg))
     return ModesFit(modes, float(v[3 * n_modes]), float(se[3 * n_modes]), sign, bg,
                     (float(band[0]), float(band[1])), int(f.size), redchi, scale,
-                    "noise-estimate" if weighted else "residuals")
+                    "noise-estimate" if weighted else "residuals", chi2)
