@@ -70,7 +70,7 @@ def atomic_write(path: str | os.PathLike[str], writer: Callable[[str], None]) ->
         raise InputError(str(p), None, "output path is a directory, expected a file name")
     try:
         parent.mkdir(parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".part" + p.suffix, dir=parent)
+        fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".part", dir=parent)
     except OSError as exc:
         raise InputError(str(p), None, f"cannot write here: {exc.strerror or exc}") from None
     os.close(fd)
