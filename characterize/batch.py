@@ -40,7 +40,7 @@ from typing import Any
 
 from . import SCHEMA, __version__
 from .errors import FitError, InputError
-from .fileio import read_toml
+from .fileio import read_text, read_toml
 
 #: Schema of the batch summary (summary.json) and of an item's failure document.
 BATCH_SCHEMA = "characterize.batch/1"
@@ -370,19 +370,7 @@ def read_manifest(path: str | os.PathLike[str], spec: Spec) -> Manifest:
     """
     p = Path(path)
     source = str(p)
-    try:
-        raw = p.read_bytes()
-    except FileNotFoundError:
-        raise InputError(source, None, "file not found") from None
-    except IsADirectoryError:
-        raise InputError(source, None, "is a directory, expected a manifest (CSV)") from None
-    except OSError as exc:
-        raise InputError(source, None, f"cannot read: {exc.strerror or exc}") from None
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        raise InputError(source, None, f"not UTF-8 text (bad byte at offset {exc.start}); "
-                         "save the manifest as CSV UTF-8") from None
+    text = read_text(p, "a manifest (CSV, saved as UTF-8)")
     if not text.strip():
         raise InputError(source, None, "empty manifest: expected a header row "
                          f"({', '.join(MANIFEST_COLUMNS)}) and one row per item")

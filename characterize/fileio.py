@@ -102,27 +102,34 @@ def atomic_write_text(path: str | os.PathLike[str], text: str) -> Path:
     return atomic_write(path, _w)
 
 
-def read_toml(path: str | os.PathLike[str], what: str) -> dict[str, Any]:
-    """Read a UTF-8 TOML file; one-line :class:`InputError` naming the file for a
-    missing or unreadable file, a directory, bad bytes or bad TOML (with
-    tomllib's line and column). ``what`` names the kind of file in messages."""
-    import tomllib
-
+def read_text(path: str | os.PathLike[str], what: str, *, bom: bool = True) -> str:
+    """Read a UTF-8 text file (a byte-order mark is dropped when ``bom``); one-line
+    :class:`InputError` naming the file for a missing or unreadable file, a
+    directory or bad bytes. ``what`` names the kind of file ("a manifest (CSV)")."""
     source = str(path)
     try:
         raw = Path(path).read_bytes()
     except FileNotFoundError:
         raise InputError(source, None, "file not found") from None
     except IsADirectoryError:
-        raise InputError(source, None, f"is a directory, expected {what} (TOML)") from None
+        raise InputError(source, None, f"is a directory, expected {what}") from None
     except OSError as exc:
         raise InputError(source, None, f"cannot read file: {exc.strerror or exc}") from None
     try:
-        text = raw.decode("utf-8")
+        return raw.decode("utf-8-sig" if bom else "utf-8")
     except UnicodeDecodeError as exc:
         raise InputError(source, None, f"not UTF-8 text (bad byte at offset {exc.start}); "
-                         "expected a TOML file") from None
+                         f"expected {what}") from None
+
+
+def read_toml(path: str | os.PathLike[str], what: str) -> dict[str, Any]:
+    """Read a UTF-8 TOML file (:func:`read_text`); bad TOML is a one-line
+    :class:`InputError` with tomllib's line and column."""
+    import tomllib
+
+    text = read_text(path, f"{what} (TOML)", bom=False)
     try:
         return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise InputError(source, None, f"not valid TOML: {' '.join(str(exc).split())}") from None
+        raise InputError(str(path), None,
+                         f"not valid TOML: {' '.join(str(exc).split())}") from None

@@ -16,7 +16,7 @@ from pathlib import Path
 import numpy as np
 
 from .errors import InputError
-from .fileio import atomic_write_text
+from .fileio import atomic_write_text, read_text
 from .transfer import TransferFunction
 
 _PATTERNS = {
@@ -46,12 +46,7 @@ def read_transfer_csv(path: str | Path) -> TransferFunction:
     errors from the residuals (``fit.weighting = "residuals"``).
     """
     p = Path(path)
-    try:
-        text = p.read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise InputError(str(p), None, "file not found") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(str(p), None, f"cannot read as text ({exc})") from None
+    text = read_text(p, "a transfer function (CSV)")
     lines = [ln for ln in text.splitlines() if ln.strip() and not ln.lstrip().startswith("#")]
     if len(lines) < 2:
         raise InputError(str(p), None, f"no data rows; {HEADER_HELP}")

@@ -46,6 +46,7 @@ import numpy as np
 from . import SCHEMA
 from .checks import Flag
 from .errors import FitError, InputError
+from .fileio import read_text
 from .physics.air import AirState, air_state
 from .physics.geometry import AirOverrides, Cavity, Neck, ResonatorObject, load_object
 from .physics.helmholtz import (
@@ -408,15 +409,7 @@ def load_result(path: str | Path) -> ResultSummary:
     if p.is_dir():
         p = p / "result.json"
     source = str(p)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError(source, None, "file not found") from None
-    except UnicodeDecodeError:
-        raise InputError(source, None, "not UTF-8 text; expected a result document (JSON)") \
-            from None
-    except OSError as exc:
-        raise InputError(source, None, f"cannot read file: {exc.strerror or exc}") from None
+    text = read_text(p, "a result document (JSON)", bom=False)
     try:
         doc = json.loads(text)
     except json.JSONDecodeError as exc:
@@ -1330,16 +1323,7 @@ class ManifestRow:
 
 def _read_csv(path: Path) -> tuple[list[str], list[tuple[int, dict[str, str]]]]:
     source = str(path)
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise InputError(source, None, "file not found") from None
-    except IsADirectoryError:
-        raise InputError(source, None, "is a directory, expected a CSV file") from None
-    except UnicodeDecodeError:
-        raise InputError(source, None, "not UTF-8 text; expected a CSV file") from None
-    except OSError as exc:
-        raise InputError(source, None, f"cannot read file: {exc.strerror or exc}") from None
+    text = read_text(path, "a CSV file")
     lines = [(i + 1, ln) for i, ln in enumerate(text.splitlines())
              if ln.strip() and not ln.lstrip().startswith("#")]
     if not lines:
