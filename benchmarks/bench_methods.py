@@ -12,19 +12,10 @@ from __future__ import annotations
 import argparse
 import math
 import os
-import statistics
 import tempfile
-import time
 from pathlib import Path
 
-
-def _median(fn, repeat: int) -> float:
-    times = []
-    for _ in range(repeat):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return statistics.median(times)
+from bench_fit import _median_time as _median  # the same timer (this folder is on sys.path)
 
 
 def main() -> None:
