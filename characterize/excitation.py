@@ -9,13 +9,18 @@ swept-sine technique", AES 108th Convention, preprint 5093 (2000).
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import asdict, dataclass
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 from numpy.typing import NDArray
 
 from .errors import InputError
+
+if TYPE_CHECKING:
+    from .longfft import LongSpectrum
 
 #: Default fade lengths and silent tail of a generated sweep.
 DEFAULT_FADE_IN_S = 0.05
@@ -60,10 +65,11 @@ class SweepParams:
 
 @dataclass(frozen=True)
 class Sweep:
-    """A sweep's parameters and samples (sweep followed by the silent tail)."""
+    """A sweep's parameters and samples (sweep followed by the silent tail;
+    float64 when generated, float32 as read from a file)."""
 
     params: SweepParams
-    samples: NDArray[np.float64]
+    samples: NDArray[np.floating]
     estimated: bool = False  # True when the parameters were read off the samples
 
 
@@ -248,7 +254,9 @@ def load_sweep(path: str | Path, rate_hz: float | None = None) -> Sweep:
         raise InputError(str(path), "sample rate",
                          f"sweep is at {rec.sample_rate_hz:g} Hz but the recording is at "
                          f"{rate_hz:g} Hz; resample one of them")
-    x = rec.channel(1)
+    # single precision as stored (exact for 16/24-bit PCM and float WAVs): a long
+    # sweep's samples stay in memory beside the recording's
+    x = np.ascontiguousarray(rec.view(1))
     side = sidecar_path(path)
     if side.exists():
         params = read_sidecar(side)
@@ -276,6 +284,36 @@ def usable_band(params: SweepParams) -> tuple[float, float]:
             min(params.stop_hz / BAND_EDGE_FACTOR, 0.45 * params.rate_hz))
 
 
+def band_response(f_min_hz: float, f_max_hz: float, lo_hz: float, hi_hz: float,
+                  order: int = BAND_ORDER
+                  ) -> Callable[[NDArray[np.float64]], NDArray[np.complex128]]:
+    """The causal band limit of :func:`band_filter` as a function of frequency,
+    accurate on [``f_min_hz``, ``f_max_hz``]: evaluated once on a dense log grid
+    (zeros-poles-gain form; the polynomial form loses precision at order 8),
+    then interpolated (the response is smooth in log frequency, and the FFT grids
+    here have up to 10^8 points)."""
+    from scipy.signal import butter, freqs_zpk
+
+    f_min = float(f_min_hz)
+    grid = np.geomspace(f_min, max(float(f_max_hz), f_min * 1.0001), 20000)
+    w = 2 * np.pi * grid
+    zh, ph, kh = butter(order, 2 * np.pi * lo_hz, btype="highpass", analog=True, output="zpk")
+    zl, pl, kl = butter(order, 2 * np.pi * hi_hz, btype="lowpass", analog=True, output="zpk")
+    _, hh = freqs_zpk(zh, ph, kh, worN=w)
+    _, hl = freqs_zpk(zl, pl, kl, worN=w)
+    g = hh * hl
+    lg = np.log(grid)
+
+    def response(freqs_hz: NDArray[np.float64]) -> NDArray[np.complex128]:
+        f = np.asarray(freqs_hz, dtype=np.float64)
+        lf = np.log(np.maximum(f, f_min))
+        out = np.interp(lf, lg, g.real) + 1j * np.interp(lf, lg, g.imag)
+        out[f <= 0] = 0.0
+        return out
+
+    return response
+
+
 def band_filter(freqs_hz: NDArray[np.float64], lo_hz: float, hi_hz: float,
                 order: int = BAND_ORDER) -> NDArray[np.complex128]:
     """Causal (minimum-phase) band limit: analog Butterworth high-pass at ``lo_hz``
@@ -285,26 +323,30 @@ def band_filter(freqs_hz: NDArray[np.float64], lo_hz: float, hi_hz: float,
     A causal band limit keeps the deconvolved impulse responses free of
     precursors, so one window cut before the onset treats both channels alike.
     """
-    from scipy.signal import butter, freqs_zpk
-
     f = np.asarray(freqs_hz, dtype=np.float64)
-    # zeros-poles-gain form (the polynomial form loses precision at order 8),
-    # evaluated on a dense log grid and interpolated: the response is smooth in
-    # log frequency and the FFT grids here have up to millions of points
     pos = f[f > 0]
     if pos.size == 0:
         return np.zeros(f.size, dtype=np.complex128)
-    grid = np.geomspace(pos.min(), max(pos.max(), pos.min() * 1.0001), 20000)
-    w = 2 * np.pi * grid
-    zh, ph, kh = butter(order, 2 * np.pi * lo_hz, btype="highpass", analog=True, output="zpk")
-    zl, pl, kl = butter(order, 2 * np.pi * hi_hz, btype="lowpass", analog=True, output="zpk")
-    _, hh = freqs_zpk(zh, ph, kh, worN=w)
-    _, hl = freqs_zpk(zl, pl, kl, worN=w)
-    g = hh * hl
-    lf = np.log(np.maximum(f, pos.min()))
-    out = np.interp(lf, np.log(grid), g.real) + 1j * np.interp(lf, np.log(grid), g.imag)
-    out[f <= 0] = 0.0
-    return out
+    return band_response(float(pos.min()), float(pos.max()), lo_hz, hi_hz, order)(f)
+
+
+def _inverse_values(x: NDArray[np.complex128], f: NDArray[np.float64], p: SweepParams,
+                    peak: float, limit: NDArray[np.complex128]) -> NDArray[np.complex128]:
+    """``limit conj(X) / max(|X|^2 + eps, floor)`` for sweep-spectrum values ``x`` at
+    frequencies ``f`` (see :func:`inverse_spectrum`)."""
+    power = np.abs(x) ** 2
+    # Outside the sweep there is nothing to invert: a regularisation that is zero
+    # inside [start, stop] and rises smoothly (raised cosine over half an octave)
+    # to the sweep's peak power outside keeps the gain there bounded. The band
+    # limit is already 48 dB down at the sweep's ends, so what this changes is
+    # small and smooth, and the responses stay causal to well below the noise.
+    with np.errstate(divide="ignore"):
+        lf = np.log2(np.maximum(f, 1e-12))
+    above = np.clip((lf - math.log2(p.stop_hz)) / 0.5, 0.0, 1.0)
+    below = np.clip((math.log2(p.start_hz) - lf) / 0.5, 0.0, 1.0)
+    ramp = 0.5 * (1 - np.cos(np.pi * np.maximum(above, below)))
+    eps = peak * ramp**2
+    return limit * np.conj(x) / np.maximum(power + eps, INVERSE_FLOOR * peak)
 
 
 def inverse_spectrum(sweep: Sweep, n_fft: int) -> NDArray[np.complex128]:
@@ -318,21 +360,36 @@ def inverse_spectrum(sweep: Sweep, n_fft: int) -> NDArray[np.complex128]:
     p = sweep.params
     from scipy import fft as sfft
 
-    x = sfft.rfft(sweep.samples, n_fft)
+    x = sfft.rfft(np.asarray(sweep.samples, dtype=np.float64), n_fft)
     f = np.fft.rfftfreq(n_fft, 1 / p.rate_hz)
     lo, hi = usable_band(p)
     limit = band_filter(f, lo, min(hi, 0.45 * p.rate_hz))
-    power = np.abs(x) ** 2
-    peak = float(np.max(power))
-    # Outside the sweep there is nothing to invert: a regularisation that is zero
-    # inside [start, stop] and rises smoothly (raised cosine over half an octave)
-    # to the sweep's peak power outside keeps the gain there bounded. The band
-    # limit is already 48 dB down at the sweep's ends, so what this changes is
-    # small and smooth, and the responses stay causal to well below the noise.
-    with np.errstate(divide="ignore"):
-        lf = np.log2(np.maximum(f, 1e-12))
-    above = np.clip((lf - math.log2(p.stop_hz)) / 0.5, 0.0, 1.0)
-    below = np.clip((math.log2(p.start_hz) - lf) / 0.5, 0.0, 1.0)
-    ramp = 0.5 * (1 - np.cos(np.pi * np.maximum(above, below)))
-    eps = peak * ramp**2
-    return limit * np.conj(x) / np.maximum(power + eps, INVERSE_FLOOR * peak)
+    return _inverse_values(x, f, p, float(np.max(np.abs(x) ** 2)), limit)
+
+
+def long_inverse_spectrum(sweep: Sweep, n_fft_min: int) -> LongSpectrum:
+    """:func:`inverse_spectrum` for very long sweeps, in a
+    :class:`characterize.longfft.LongSpectrum` of at least ``n_fft_min`` points
+    (single-precision storage, double-precision arithmetic in blocks): the
+    same values to about 1e-7 of the largest, with a fraction of the memory."""
+    from .longfft import LongSpectrum
+
+    p = sweep.params
+    spec = LongSpectrum.for_length(n_fft_min)
+    spec.signal[: sweep.samples.size] = sweep.samples
+    spec.forward()
+    df = p.rate_hz / spec.n_fft
+    peak = 0.0
+    for sl, _ in spec.blocks():
+        peak = max(peak, float(np.max(np.abs(spec.buf[sl].astype(np.complex128)) ** 2)))
+    v0 = complex(spec.buf[0])
+    peak = max(peak, v0.real**2, v0.imag**2)
+    lo, hi = usable_band(p)
+    limit = band_response(df, p.rate_hz / 2, lo, min(hi, 0.45 * p.rate_hz))
+
+    def invert(k: NDArray[np.int64], x: NDArray[np.complex128]) -> NDArray[np.complex128]:
+        f = k * df
+        return _inverse_values(x, f, p, peak, limit(f))
+
+    spec.apply(invert, edge=lambda v: 0j)  # the band limit is zero at DC and Nyquist
+    return spec

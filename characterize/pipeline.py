@@ -339,9 +339,11 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
         tf = read_transfer_csv(transfer_path)
     else:
         assert rec is not None
-        # float64 copies only where the whole signal is transformed at once; the
-        # cross-spectral path reads the float32 samples block by block
-        y_in = rec.channel(inside) if chosen not in ("h1", "h2") else rec.view(inside)
+        # float64 copies only where the whole signal is transformed at once in
+        # double precision; the cross-spectral path reads the float32 samples block
+        # by block, the sweep path casts or copies them as its FFT size needs
+        excitation_file = chosen == "one-channel" and excitation_path is not None
+        y_in = rec.channel(inside) if excitation_file else rec.view(inside)
         if chosen in ("sweep", "one-channel") and sweep_path is not None:
             from .excitation import load_sweep
 
@@ -353,7 +355,7 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
             sweep_from = "samples" if sweep.estimated else "sidecar"
             from .transfer import sweep_transfer
 
-            y_out = rec.channel(outside) if chosen == "sweep" else None
+            y_out = rec.view(outside) if chosen == "sweep" else None
             tf = sweep_transfer(y_in, y_out, rec.sample_rate_hz, sweep, window_s=window_s)
         elif chosen == "one-channel":
             assert excitation_path is not None

@@ -16,13 +16,14 @@ Two estimators:
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
 
 from .errors import FitError, InputError
-from .excitation import Sweep, band_filter, inverse_spectrum, usable_band
+from .excitation import Sweep, SweepParams, band_filter, inverse_spectrum, usable_band
 
 #: Time before the direct sound's peak kept in the window (s); also the taper-in.
 PRE_ONSET_S = 0.004
@@ -243,6 +244,18 @@ def _noise_power(seg: NDArray[np.float64], n_out: int, rate_hz: float,
 ONSET_THRESHOLD = 1e-4
 
 
+def _argmax_abs(x: NDArray[np.floating], block: int = 1 << 22) -> int:
+    """Index of the largest |x|, block by block (no full-length temporary)."""
+    best, where = -1.0, 0
+    for a in range(0, x.size, block):
+        seg = x[a:a + block]
+        i = int(np.argmax(np.abs(seg)))
+        v = abs(float(seg[i]))
+        if v > best:
+            best, where = v, a + i
+    return where
+
+
 def find_onset(ir: NDArray[np.float64], rate_hz: float, max_lookback: int) -> int:
     """Index where a (circular) impulse response starts: search back from its
     peak, at most ``max_lookback`` samples, to where its envelope (a 0.5 ms
@@ -253,20 +266,79 @@ def find_onset(ir: NDArray[np.float64], rate_hz: float, max_lookback: int) -> in
     its maximum."""
     from scipy.ndimage import maximum_filter1d
 
-    a = np.abs(ir)
-    i_peak = int(np.argmax(a))
-    look = int(max(1, min(max_lookback, a.size // 4)))
-    idx = (i_peak - look + np.arange(look + 1)) % a.size
-    env = maximum_filter1d(a[idx], size=max(3, int(5e-4 * rate_hz)), mode="nearest")
+    i_peak = _argmax_abs(ir)
+    look = int(max(1, min(max_lookback, ir.size // 4)))
+    idx = (i_peak - look + np.arange(look + 1)) % ir.size
+    env = maximum_filter1d(np.abs(ir[idx].astype(np.float64)), size=max(3, int(5e-4 * rate_hz)),
+                           mode="nearest")
     noise = float(np.median(env[: max(1, look // 2)]))
-    thr = max(ONSET_THRESHOLD * a[i_peak], 3.0 * noise)
+    thr = max(ONSET_THRESHOLD * abs(float(ir[i_peak])), 3.0 * noise)
     below = np.flatnonzero(env < thr)
     if below.size == 0:
         return i_peak - look
     return i_peak - look + int(below[-1])
 
 
-def harmonic_distortion(ir: NDArray[np.float64], onset: int, pre: int, sweep: Sweep,
+#: Longest stretch of a harmonic's impulse response read for the THD (s); longer
+#: windows than this only refine a diagnostic and would cost memory on long sweeps.
+THD_MAX_S = 30.0
+
+
+def harmonic_stretches(sweep: Sweep, rate_hz: float, onset: int, pre: int,
+                       max_length: int) -> list[tuple[int, int, int]]:
+    """(order, first sample, length) of each harmonic impulse response read for the
+    THD: from ``pre`` before the n-th image (which sits T ln(n)/ln(f2/f1) before the
+    onset, Farina 2000) for at most ``max_length`` samples, ``THD_MAX_S``, or what
+    the gap to the next image leaves; orders 2..HARMONIC_ORDERS_THD while the gap
+    holds at least 4 ``pre``."""
+    p = sweep.params
+    out = []
+    for order in range(2, HARMONIC_ORDERS_THD + 1):
+        adv = int(round(p.harmonic_advance_s(order) * rate_hz))
+        gap = adv - int(round(p.harmonic_advance_s(order - 1) * rate_hz))
+        length = int(min(max_length, gap - 2 * pre, THD_MAX_S * rate_hz))
+        if length < 4 * pre:
+            break
+        out.append((order, onset - adv - pre, length))
+    return out
+
+
+class Impulse:
+    """An impulse response on an ``n_fft``-point circular grid: whole, or as the
+    stretches kept of it (long recordings keep only what is read)."""
+
+    def __init__(self, n_fft: int, whole: NDArray[np.floating] | None = None) -> None:
+        self.n_fft = int(n_fft)
+        self.whole = whole
+        self.pieces: list[tuple[int, NDArray[np.float32]]] = []
+
+    def keep(self, stretches: list[tuple[int, int]], shift: int = 0) -> None:
+        """Keep (first sample, length) stretches of the whole response delayed by
+        ``shift`` samples, in single precision, and let the whole go."""
+        assert self.whole is not None
+        for first, length in stretches:
+            a = (first - shift) % self.n_fft
+            if a + length <= self.n_fft:
+                piece = self.whole[a:a + max(0, length)].astype(np.float32)
+            else:
+                piece = self.whole[(a + np.arange(length)) % self.n_fft].astype(np.float32)
+            self.pieces.append((first % self.n_fft, piece))
+        self.whole = None
+
+    def take(self, first: int, length: int) -> NDArray[np.floating]:
+        """Samples ``first`` .. ``first + length - 1`` (modulo ``n_fft``): a copy of
+        the whole response's (float64), or a view of a kept stretch (float32)."""
+        if self.whole is not None:
+            return np.asarray(self.whole[(first + np.arange(length)) % self.n_fft],
+                              dtype=np.float64)
+        for start, arr in self.pieces:
+            off = (first - start) % self.n_fft
+            if off + length <= arr.size:
+                return arr[off:off + length]
+        raise AssertionError(f"stretch {first}+{length} of the impulse response was not kept")
+
+
+def harmonic_distortion(ir: Impulse, onset: int, pre: int, sweep: Sweep,
                         rate_hz: float, freqs_hz: NDArray[np.float64], max_length: int,
                         fundamental: NDArray[np.complex128]) -> NDArray[np.float64]:
     """THD against excitation frequency from the harmonic impulse responses.
@@ -280,23 +352,16 @@ def harmonic_distortion(ir: NDArray[np.float64], onset: int, pre: int, sweep: Sw
     leaves unattenuated (higher orders beyond it are left out).
     """
     p = sweep.params
-    n_fft = ir.size
     total = np.zeros(freqs_hz.size)
     lo, hi = usable_band(p)  # where the band limit leaves the responses unattenuated
     from scipy import fft as sfft
 
-    for order in range(2, HARMONIC_ORDERS_THD + 1):
-        adv = int(round(p.harmonic_advance_s(order) * rate_hz))
-        gap = adv - int(round(p.harmonic_advance_s(order - 1) * rate_hz))
-        length = int(min(max_length, gap - 2 * pre))
-        if length < 4 * pre:
-            break
-        idx = (onset - adv - pre + np.arange(length)) % n_fft
+    for order, first, length in harmonic_stretches(sweep, rate_hz, onset, pre, max_length):
         w = np.ones(length)
         w[:pre] = 0.5 * (1 - np.cos(np.pi * np.arange(pre) / pre))
         taper = max(2, length // 20)
         w[-taper:] = 0.5 * (1 + np.cos(np.pi * (np.arange(taper) + 1) / taper))
-        spec = sfft.rfft(ir[idx] * w)
+        spec = sfft.rfft(ir.take(first, length) * w)
         f_n = np.fft.rfftfreq(length, 1 / rate_hz)
         target = order * freqs_hz
         mag = np.interp(target, f_n, np.abs(spec), right=np.nan)
@@ -315,7 +380,11 @@ def harmonic_distortion(ir: NDArray[np.float64], onset: int, pre: int, sweep: Sw
 REFLECTION_FRACTION = 0.2
 
 
-def first_reflection(ir: NDArray[np.float64], onset: int, rate_hz: float, lo_hz: float,
+#: Stretch of a one-microphone response read for the first reflection (s, around the onset).
+REFLECTION_SPAN_S = (0.01, 0.25)
+
+
+def first_reflection(ir: Impulse, onset: int, rate_hz: float, lo_hz: float,
                      hi_hz: float) -> int | None:
     """Samples from the onset to the first strong reflection in a one-microphone
     impulse response, or None. Above the resonance the resonator passes sound
@@ -328,10 +397,11 @@ def first_reflection(ir: NDArray[np.float64], onset: int, rate_hz: float, lo_hz:
     lo = min(lo_hz, 0.4 * hi_hz)
     if lo >= hi_hz or hi_hz >= rate_hz / 2:
         return None
-    seg = ir[(onset + np.arange(-int(0.01 * rate_hz), int(0.25 * rate_hz))) % ir.size]
+    before, after = (int(t * rate_hz) for t in REFLECTION_SPAN_S)
+    seg = ir.take(onset - before, before + after)
     sos = butter(4, [lo, hi_hz], btype="bandpass", fs=rate_hz, output="sos")
     env = maximum_filter1d(np.abs(sosfiltfilt(sos, seg)), size=max(3, int(2.5e-4 * rate_hz)))
-    z = int(0.01 * rate_hz)
+    z = before
     direct = float(np.max(env[z: z + int(0.002 * rate_hz)]))
     # skip the direct sound's own ringing through the band-pass (a few periods of
     # its lowest frequency), then look for a rise: an arrival, not a decaying tail
@@ -380,7 +450,140 @@ def decay_end(seg: NDArray[np.float64], rate_hz: float, noise_from: int, noise_t
     return int((above[-1] + 1) * b) if above.size else 0
 
 
-def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64] | None,
+#: Deconvolutions on FFT grids longer than this (about three minutes of recording
+#: and sweep at 48 kHz) run in a :class:`characterize.longfft.LongSpectrum`:
+#: single-precision storage, double-precision arithmetic, a fraction of the memory.
+LONG_FFT_POINTS = 1 << 24
+#: Longest stretch of impulse response after the onset that is read (s): it holds
+#: the window (at most WINDOW_TIME_CONSTANTS ringing time constants) and the
+#: noise-only stretch after it for time constants up to about 1 s (Q 150 at
+#: 50 Hz); slower decays get a shorter window, flagged when too short.
+KEEP_S = 60.0
+
+
+def _abs_at(values: Callable[[NDArray[np.int64]], NDArray[np.complex128]], n_fft: int,
+            rate_hz: float, f: NDArray[np.float64]) -> NDArray[np.float64]:
+    """|X| at frequencies ``f``, linearly interpolated between the rfft bins of an
+    ``n_fft``-point grid whose values ``values(k)`` gives."""
+    x = np.asarray(f, dtype=np.float64) * n_fft / rate_hz
+    k0 = np.clip(np.floor(x).astype(np.int64), 0, n_fft // 2 - 1)
+    frac = np.clip(x - k0, 0.0, 1.0)
+    return np.abs(values(k0)) * (1 - frac) + np.abs(values(k0 + 1)) * frac
+
+
+def _window_limits(p: SweepParams, rate_hz: float, n: int, n_fft: int,
+                   onset: int) -> tuple[int, int, int]:
+    """(pre, first sample, longest window) of the impulse-response window: from
+    ``pre`` samples before the onset, clear of the order-HARMONIC_ORDERS_EXCLUDED
+    image, within the recording and ``KEEP_S``."""
+    adv2 = int(p.harmonic_advance_s(2) * rate_hz)
+    pre = int(round(PRE_ONSET_S * rate_hz))
+    pre = max(8, min(pre, adv2 // 2))
+    adv_max = int(p.harmonic_advance_s(HARMONIC_ORDERS_EXCLUDED) * rate_hz)
+    start = onset - pre
+    # the response cannot be longer than the recording after the onset
+    l_max = min(n_fft - adv_max - 2 * pre, n - start, int(KEEP_S * rate_hz))
+    return pre, start, l_max
+
+
+def _stretches(sweep: Sweep, rate_hz: float, n: int, n_fft: int, onset: int,
+               one_mic: bool) -> list[tuple[int, int]]:
+    """Every (first sample, length) of an impulse response that
+    :func:`sweep_transfer` reads once the onset is known."""
+    pre, start, l_max = _window_limits(sweep.params, rate_hz, n, n_fft, onset)
+    out = [(start, l_max)]
+    out += [(first, length) for _, first, length in
+            harmonic_stretches(sweep, rate_hz, onset, pre, l_max)]
+    if one_mic:
+        before, after = (int(t * rate_hz) for t in REFLECTION_SPAN_S)
+        out.append((onset - before, before + after))
+    return out
+
+
+def _deconvolve(inside: NDArray[np.floating], outside: NDArray[np.floating] | None,
+                rate_hz: float, sweep: Sweep
+                ) -> tuple[int, int, Impulse, Impulse,
+                           Callable[[NDArray[np.int64]], NDArray[np.complex128]]]:
+    """Both channels deconvolved by the sweep (Farina 2000): (FFT length, onset,
+    inside and outside impulse responses, the inverse filter's value at rfft bins).
+
+    The FFT is longer than recording plus sweep, so that the harmonic images fall
+    at negative times. Above ``LONG_FFT_POINTS`` it runs in place in single-
+    precision buffers (:class:`characterize.longfft.LongSpectrum`) and is only
+    as much longer than the recording as the harmonic images and the kept
+    stretch need: the noise deconvolved to negative times (down to minus the
+    sweep's length) then wraps around to lags past ``KEEP_S`` after the onset,
+    outside everything read. Only the stretches that are read are kept.
+    """
+    p = sweep.params
+    n = inside.size
+    adv2 = int(p.harmonic_advance_s(2) * rate_hz)
+    n_fft = _fast_len(n + sweep.samples.size)
+    lo_b, hi_b = usable_band(p)
+    if n_fft <= LONG_FFT_POINTS:
+        from scipy import fft as sfft
+
+        xinv = inverse_spectrum(sweep, n_fft)
+        ir_in = sfft.irfft(sfft.rfft(np.asarray(inside, dtype=np.float64), n_fft) * xinv, n_fft)
+        if outside is None:
+            # the reference is the excitation itself: the band-limited impulse at the onset
+            onset = find_onset(ir_in, rate_hz, max_lookback=adv2 // 2)
+            limit = band_filter(np.fft.rfftfreq(n_fft, 1 / rate_hz), lo_b, hi_b)
+            ir_out = np.roll(sfft.irfft(limit, n_fft), onset)
+        else:
+            ir_out = sfft.irfft(sfft.rfft(np.asarray(outside, dtype=np.float64), n_fft) * xinv,
+                                n_fft)
+            onset = find_onset(ir_out, rate_hz, max_lookback=adv2 // 2)
+        return (n_fft, onset, Impulse(n_fft, ir_in), Impulse(n_fft, ir_out),
+                lambda k: xinv[k])
+
+    from .excitation import band_response, long_inverse_spectrum
+    from .longfft import LongSpectrum
+
+    pre = max(8, min(int(round(PRE_ONSET_S * rate_hz)), adv2 // 2))
+    adv_max = int(p.harmonic_advance_s(HARMONIC_ORDERS_EXCLUDED) * rate_hz)
+    # past the recording by what clears the harmonic images and keeps the
+    # negative-time noise (down to -T) that wraps around out of the kept stretch
+    clear = adv_max + 2 * pre + int(0.5 * rate_hz)
+    s_inv = long_inverse_spectrum(sweep, n + min(sweep.samples.size, clear))
+    n_fft = s_inv.n_fft
+    work = LongSpectrum(s_inv.n1, s_inv.n2)
+
+    def response(x: NDArray[np.floating]) -> NDArray[np.float32]:
+        work.buf[:] = 0
+        work.signal[:n] = x
+        work.forward()
+        work.multiply(s_inv)
+        work.inverse()
+        return work.signal
+
+    def values(k: NDArray[np.int64]) -> NDArray[np.complex128]:
+        k = np.asarray(k, dtype=np.int64)
+        inner = (k > 0) & (k < s_inv.n)
+        out = np.zeros(k.shape, dtype=np.complex128)
+        out[inner] = s_inv.values_at(k[inner])
+        return out
+
+    if outside is None:
+        ir_in = Impulse(n_fft, response(inside))
+        onset = find_onset(ir_in.whole, rate_hz, max_lookback=adv2 // 2)
+        ir_in.keep(_stretches(sweep, rate_hz, n, n_fft, onset, True))
+        df = rate_hz / n_fft
+        limit = band_response(df, rate_hz / 2, lo_b, hi_b)
+        work.apply(lambda k, v: limit(k * df), edge=lambda v: 0j)
+        work.inverse()
+        ir_out = Impulse(n_fft, work.signal)
+        ir_out.keep(_stretches(sweep, rate_hz, n, n_fft, onset, True), shift=onset)
+    else:
+        ir_out = Impulse(n_fft, response(outside))
+        onset = find_onset(ir_out.whole, rate_hz, max_lookback=adv2 // 2)
+        ir_out.keep(_stretches(sweep, rate_hz, n, n_fft, onset, False))
+        ir_in = Impulse(n_fft, response(inside))
+        ir_in.keep(_stretches(sweep, rate_hz, n, n_fft, onset, False))
+    return n_fft, onset, ir_in, ir_out, values
+
+
+def sweep_transfer(inside: NDArray[np.floating], outside: NDArray[np.floating] | None,
                    rate_hz: float, sweep: Sweep, *, window_s: float | None = None
                    ) -> TransferFunction:
     """H(f) from a swept-sine recording of both microphones, or of the inside
@@ -388,9 +591,9 @@ def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64] | N
     and the window ends before the first strong reflection).
 
     Steps: linear deconvolution of each channel by the sweep's regularised
-    inverse (:func:`characterize.excitation.inverse_spectrum`), on an FFT
-    longer than recording plus sweep so that the harmonic images fall at
-    negative times (Farina 2000); one window on both impulse responses from
+    inverse (:func:`characterize.excitation.inverse_spectrum`, in
+    :func:`_deconvolve`) so that the harmonic images fall at negative times
+    (Farina 2000); one window on both impulse responses from
     ``PRE_ONSET_S`` before the direct sound for ``WINDOW_TIME_CONSTANTS``
     ringing time constants (estimated from a first, long window) or as long as
     the harmonic images allow; the ratio of the two spectra. The per-bin noise
@@ -398,39 +601,20 @@ def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64] | N
     """
     p = sweep.params
     n = inside.size
-    n_fft = _fast_len(n + sweep.samples.size)
-    xinv = inverse_spectrum(sweep, n_fft)
-    from scipy import fft as sfft
-
-    ir_in = sfft.irfft(sfft.rfft(inside, n_fft) * xinv, n_fft)
-    adv2 = int(p.harmonic_advance_s(2) * rate_hz)
     one_mic = outside is None
-    if one_mic:
-        # the reference is the excitation itself: the band-limited impulse at the onset
-        onset = find_onset(ir_in, rate_hz, max_lookback=adv2 // 2)
-        lo_b, hi_b = usable_band(p)
-        limit = band_filter(np.fft.rfftfreq(n_fft, 1 / rate_hz), lo_b, hi_b)
-        ir_out = np.roll(sfft.irfft(limit, n_fft), onset)
-    else:
-        ir_out = sfft.irfft(sfft.rfft(outside, n_fft) * xinv, n_fft)
-        onset = find_onset(ir_out, rate_hz, max_lookback=adv2 // 2)
-    pre = int(round(PRE_ONSET_S * rate_hz))
-    pre = max(8, min(pre, adv2 // 2))
-    adv_max = int(p.harmonic_advance_s(HARMONIC_ORDERS_EXCLUDED) * rate_hz)
-    l_max = n_fft - adv_max - 2 * pre
-    # the response cannot be longer than the recording after the onset
-    l_max = min(l_max, n - (onset - pre))
+    n_fft, onset, ir_in, ir_out, xinv_at = _deconvolve(inside, outside, rate_hz, sweep)
+    pre, start, l_max = _window_limits(p, rate_hz, n, n_fft, onset)
     if l_max < int(MIN_WINDOW_S * rate_hz):
         raise FitError("the sweep is too short or fast: its harmonic images leave less than "
                        f"{MIN_WINDOW_S * 1000:.0f} ms for the response")
-    start = onset - pre
-    idx_all = (start + np.arange(l_max)) % n_fft
-    seg_in, seg_out = ir_in[idx_all], ir_out[idx_all]
+    seg_in, seg_out = ir_in.take(start, l_max), ir_out.take(start, l_max)
     band = usable_band(p)
+    from scipy import fft as sfft
 
-    def spectra(length: int) -> tuple[NDArray[np.float64], NDArray[np.complex128],
-                                      NDArray[np.complex128], NDArray[np.float64]]:
-        w = np.ones(length)
+    def spectra(length: int, dtype: type = np.float64
+                ) -> tuple[NDArray[np.float64], NDArray[np.complexfloating],
+                           NDArray[np.complexfloating], NDArray[np.floating]]:
+        w = np.ones(length, dtype=dtype)
         w[:pre] = 0.5 * (1 - np.cos(np.pi * np.arange(pre) / pre))
         n_taper = max(2, length // 20)
         w[-n_taper:] = 0.5 * (1 + np.cos(np.pi * (np.arange(n_taper) + 1) / n_taper))
@@ -441,7 +625,9 @@ def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64] | N
     f0_est: float | None = None
     tau = math.nan
     if window_s is None:
-        f, fi, fo, _ = spectra(_fast_below(l_max))
+        # a first, long window for the ringing's time constant (an estimate: in
+        # the precision the responses are kept in)
+        f, fi, fo, _ = spectra(_fast_below(l_max), seg_in.dtype.type)
         with np.errstate(divide="ignore", invalid="ignore"):
             h0 = fi / fo
         f0_est, q_est = estimate_peak(f, _mask_notches(f, h0, fo, band), band)
@@ -497,7 +683,7 @@ def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64] | N
     w2_cum = np.concatenate([[0.0], np.cumsum(w**2)])
     # window energy that meets noise, per bin
     sw2 = w2_cum[np.clip(until, 0, length).astype(int)]
-    shape = np.abs(np.interp(f, np.fft.rfftfreq(n_fft, 1 / rate_hz), np.abs(xinv))) ** 2
+    shape = _abs_at(xinv_at, n_fft, rate_hz, f) ** 2
     pn_in = _noise_power(seg_in[n0:], length, rate_hz, until, n0, shape) * sw2
     pn_out = (np.zeros_like(pn_in) if one_mic else
               _noise_power(seg_out[n0:], length, rate_hz, until, n0, shape) * sw2)
@@ -516,8 +702,9 @@ def sweep_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64] | N
                      reflection_s=reflection_s)
     method = "one-channel-sweep" if one_mic else "sweep-deconvolution"
     return TransferFunction(f, h, noise_a, noise_b, band, method, ref_db,
-                            window=win, impulse_t_s=t, impulse_inside=seg_in[:length].copy(),
-                            impulse_outside=seg_out[:length].copy(),
+                            window=win, impulse_t_s=t,
+                            impulse_inside=np.array(seg_in[:length], dtype=np.float64),
+                            impulse_outside=np.array(seg_out[:length], dtype=np.float64),
                             thd_inside=thd_in, thd_outside=thd_out)
 
 
