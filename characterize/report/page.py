@@ -124,14 +124,17 @@ img { max-width: 100%; height: auto; } .sev { font-weight: 600; }
 <caption>{{ t.caption }}</caption>
 <thead><tr>{% for c in t.columns %}<th scope="col">{{ c }}</th>{% endfor %}</tr></thead>
 <tbody>
-{% for r in t.rows %}<tr><th scope="row">{{ r[0] }}</th>{% for c in r[1:] %}<td class="num">{{ c }}</td>{% endfor %}</tr>
+{% for r in t.rows %}<tr><th scope="row">{{ r[0] }}</th>
+{%- for c in r[1:] %}<td class="num">{{ c }}</td>{% endfor %}</tr>
 {% endfor %}</tbody>
 </table></div>
 {% endfor %}<h2>Flags</h2>
-{% if flags %}<ul>{% for f in flags %}<li><span class="sev">{{ f.severity|upper }}</span> {{ f.code }}: {{ f.message }}</li>{% endfor %}</ul>
+{% if flags %}<ul>{% for f in flags %}<li><span class="sev">{{ f.severity|upper }}</span>
+{{ f.code }}: {{ f.message }}</li>{% endfor %}</ul>
 {% else %}<p>None: no check raised a flag.</p>{% endif %}
 {% if image %}<h2>Plot</h2>
-<figure><img src="data:image/png;base64,{{ image }}" alt="{{ figure.alt }}"{% if width %} width="{{ width }}" height="{{ height }}"{% endif %}>
+<figure><img src="data:image/png;base64,{{ image }}" alt="{{ figure.alt }}"
+{%- if width %} width="{{ width }}" height="{{ height }}"{% endif %}>
 <figcaption>{{ figure.caption }}</figcaption></figure>
 {% endif %}{% if settings %}<h2>Settings</h2>
 <table><tbody>
@@ -168,23 +171,28 @@ def write_html(path: str | Path, page: Page) -> Path:
 #: Text lines on one A4 page of a one-document PDF (8.5 pt, 0.0165 of the page each).
 PDF_LINES_PER_PAGE = 52
 _WRAP = 100  # characters a line at 8.5 pt across the page
+PDF_HEADING_MIN = 10  # narrowest table column (characters) before its heading wraps
 
 
 def _table_lines(t: Table) -> list[tuple[str, dict[str, Any]]]:
-    """A table as monospace lines, columns as wide as their widest cell (at most 28)."""
+    """A table as monospace lines: each column as wide as its widest cell (at most
+    28 characters), headings wrapped onto up to three lines to fit."""
     from .pdf import _clip
 
-    cells = [t.columns, *t.rows]
-    widths = [min(28, max(len(r[k]) for r in cells if k < len(r)))
+    widths = [min(28, max([len(r[k]) for r in t.rows if k < len(r)] + [PDF_HEADING_MIN]))
               for k in range(len(t.columns))]
+    heads = [textwrap.wrap(c, w)[:3] or [""] for c, w in zip(t.columns, widths, strict=True)]
 
-    def line(r: tuple[str, ...]) -> str:
+    def line(r: tuple[str, ...] | list[str]) -> str:
         return "  ".join(format(_clip(c, w), f"{'<' if k == 0 else '>'}{w}")
-                         for k, (c, w) in enumerate(zip(r, widths))).rstrip()
+                         for k, (c, w) in enumerate(zip(r, widths, strict=True))).rstrip()
 
     mono = {"family": "DejaVu Sans Mono", "fontsize": 7.2}
-    out: list[tuple[str, dict[str, Any]]] = [(t.caption, {"weight": "bold"}),
-                                             (line(t.columns), {**mono, "weight": "bold"})]
+    out: list[tuple[str, dict[str, Any]]] = [(w, {"weight": "bold"})
+                                             for w in textwrap.wrap(t.caption, _WRAP - 10)]
+    for i in range(max(len(h) for h in heads)):
+        out.append((line([h[i] if i < len(h) else "" for h in heads]),
+                    {**mono, "weight": "bold"}))
     out += [(line(r), mono) for r in t.rows]
     return out + [("", {})]
 
