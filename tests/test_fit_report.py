@@ -9,35 +9,14 @@ from __future__ import annotations
 
 import base64
 import json
-from html.parser import HTMLParser
 from pathlib import Path
 
 from click.testing import CliRunner
+from html_page import HtmlPage as _Page
 
 from characterize.cli import main
 
 EXAMPLES = Path(__file__).resolve().parent.parent / "example_audio"
-
-
-class _Page(HTMLParser):
-    def __init__(self) -> None:
-        super().__init__()
-        self.imgs: list[dict[str, str]] = []
-        self.th_scopes: list[str | None] = []
-        self.scripts = 0
-        self.text: list[str] = []
-
-    def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
-        a = dict(attrs)
-        if tag == "img":
-            self.imgs.append({k: v or "" for k, v in a.items()})
-        if tag == "th":
-            self.th_scopes.append(a.get("scope"))
-        if tag == "script":
-            self.scripts += 1
-
-    def handle_data(self, data: str) -> None:
-        self.text.append(data)
 
 
 def _fit(tmp_path: Path, obj: Path) -> Path:

@@ -22,12 +22,12 @@ import math
 import shutil
 import subprocess
 import sys
-from html.parser import HTMLParser
 from pathlib import Path
 
 import numpy as np
 import pytest
 from click.testing import CliRunner
+from html_page import HtmlPage
 
 from characterize import SCHEMA
 from characterize.cli import main
@@ -440,36 +440,13 @@ def test_command_modules_are_light() -> None:
 # ==========================================================================
 
 
-class _Html(HTMLParser):
-    """The standard library's parser: images, header scopes, scripts, text."""
-
-    def __init__(self) -> None:
-        super().__init__()
-        self.imgs: list[dict[str, str]] = []
-        self.th_scopes: list[str | None] = []
-        self.scripts = 0
-        self.text: list[str] = []
-
-    def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
-        a = {k: v or "" for k, v in attrs}
-        if tag == "img":
-            self.imgs.append(a)
-        if tag == "th":
-            self.th_scopes.append(a.get("scope"))
-        if tag == "script":
-            self.scripts += 1
-
-    def handle_data(self, data: str) -> None:
-        self.text.append(data)
-
-
 def _check_report(out: Path, png_name: str) -> tuple[str, str]:
     """report.html is self-contained (the plot embedded byte for byte as a data URI,
     no scripts, scoped headers); report.pdf is a PDF whose last page holds the plot.
     Returns the page's text and the PDF's text."""
     from pypdf import PdfReader
 
-    page = _Html()
+    page = HtmlPage()
     page.feed((out / "report.html").read_text(encoding="utf-8"))
     assert page.scripts == 0
     assert len(page.imgs) == 1 and len(page.imgs[0].get("alt", "")) > 40

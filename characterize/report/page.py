@@ -23,7 +23,7 @@ from typing import Any
 
 from .. import __version__
 from ..fileio import atomic_write, atomic_write_text
-from .html import CSP, _png_size
+from .html import CSP, HEAD, _png_size
 
 
 @dataclass(frozen=True)
@@ -89,14 +89,7 @@ def png_bytes(path: str | Path | None) -> bytes | None:
         return None
 
 
-_TEMPLATE = """<!DOCTYPE html>
-<html lang="en">
-<head>
-<meta charset="utf-8">
-<meta name="viewport" content="width=device-width, initial-scale=1">
-<meta http-equiv="Content-Security-Policy" content="{{ csp|safe }}">
-<meta name="generator" content="characterize {{ version }}">
-<title>{{ kind|capitalize }}: {{ title }}</title>
+_TEMPLATE = HEAD + """<title>{{ kind|capitalize }}: {{ title }}</title>
 <style>
 body { background: #fbf8f1; color: #1c1c1c; font: 15px/1.45 system-ui, sans-serif;
        max-width: 60rem; margin: 0 auto; padding: 1rem; }
