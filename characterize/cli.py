@@ -133,7 +133,8 @@ def sweep(out: Path, force: bool, **kw: Any) -> None:
 @click.option("--window", "window_ms", type=float, default=None,
               help="Impulse-response window (ms) on the sweep path; default automatic.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False, path_type=Path),
-              help="Write DIR/result.json, response.png, transfer.csv and report.html.")
+              help="Write DIR/result.json, response.png, transfer.csv, report.html and "
+                   "report.pdf.")
 @click.option("--json", "as_json", is_flag=True, help="Print the result document.")
 @click.option("--strict", is_flag=True, help="Exit 1 when any warning or error flag is raised.")
 @click.option("--force", is_flag=True, help="Overwrite an existing result in --out.")
@@ -159,7 +160,7 @@ def fit(recording: Path | None, object_path: Path | None, sweep_path: Path | Non
         if out_dir.exists() and not out_dir.is_dir():
             raise InputError(str(out_dir), None, "--out must be a directory")
         targets = [out_dir / "result.json", out_dir / "response.png", out_dir / "transfer.csv",
-                   out_dir / "report.html"]
+                   out_dir / "report.html", out_dir / "report.pdf"]
         for t in targets:
             check_writable(t, force=force)
     from .pipeline import analyze
@@ -187,9 +188,10 @@ def fit(recording: Path | None, object_path: Path | None, sweep_path: Path | Non
             written.append(write_transfer_csv(targets[2], result.transfer))
         else:
             written.append(decay_plot(result, targets[1]))
-        from .report.fit_html import write_fit_html
+        from .report.fit_html import write_fit_html, write_fit_pdf
 
         written.append(write_fit_html(targets[3], doc, targets[1]))
+        written.append(write_fit_pdf(targets[4], doc, targets[1]))
     if as_json:
         click.echo(to_json(doc), nl=False)
     else:

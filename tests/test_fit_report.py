@@ -1,42 +1,22 @@
-"""The one-fit report (fit --out DIR writes DIR/report.html).
+"""The one-fit report (fit --out DIR writes DIR/report.html and DIR/report.pdf).
 
 Checks against the HTML rules the batch report follows (issue: escaping of
 user text, self-contained, accessible): parsed with the standard library's
-html.parser, not with the code under test.
+html.parser, not with the code under test; the PDF with pypdf.
 """
 
 from __future__ import annotations
 
 import base64
-from html.parser import HTMLParser
+import json
 from pathlib import Path
 
 from click.testing import CliRunner
+from html_page import HtmlPage as _Page
 
 from characterize.cli import main
 
 EXAMPLES = Path(__file__).resolve().parent.parent / "example_audio"
-
-
-class _Page(HTMLParser):
-    def __init__(self) -> None:
-        super().__init__()
-        self.imgs: list[dict[str, str]] = []
-        self.th_scopes: list[str | None] = []
-        self.scripts = 0
-        self.text: list[str] = []
-
-    def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
-        a = dict(attrs)
-        if tag == "img":
-            self.imgs.append({k: v or "" for k, v in a.items()})
-        if tag == "th":
-            self.th_scopes.append(a.get("scope"))
-        if tag == "script":
-            self.scripts += 1
-
-    def handle_data(self, data: str) -> None:
-        self.text.append(data)
 
 
 def _fit(tmp_path: Path, obj: Path) -> Path:
@@ -70,3 +50,36 @@ def test_fit_report_escapes_user_text(tmp_path: Path) -> None:
     html = _fit(tmp_path, obj).read_text(encoding="utf-8")
     assert "<script>alert(1)</script>" not in html
     assert "&lt;script&gt;alert(1)&lt;/script&gt;" in html
+
+
+def test_fit_report_pdf_has_the_numbers_and_the_plot(tmp_path: Path) -> None:
+    from pypdf import PdfReader
+
+    from characterize.report.fit_html import fit_page
+    from characterize.report.page import pdf_page_count
+
+    html = _fit(tmp_path, EXAMPLES / "listening-jar-04.toml")
+    pdf = html.with_name("report.pdf")
+    assert pdf.read_bytes()[:5] == b"%PDF-"  # the PDF signature (ISO 32000-1, 7.5.2)
+    reader = PdfReader(str(pdf))
+    text = "".join(p.extract_text() for p in reader.pages)
+    assert "243.2" in text  # the fitted f0 of the example (truth 243.21 Hz)
+    assert "listening-jar-04" in text and "page 1 of" in text
+    doc = json.loads(html.with_name("result.json").read_text(encoding="utf-8"))
+    png = html.with_name("response.png").read_bytes()
+    assert len(reader.pages) == pdf_page_count(fit_page(doc, png))
+    # the last page holds the response plot: an embedded image
+    assert len(reader.pages[-1].images) == 1
+
+
+def test_fit_out_refuses_an_existing_pdf_without_force(tmp_path: Path) -> None:
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "report.pdf").write_bytes(b"keep me")
+    res = CliRunner().invoke(main, ["fit", str(EXAMPLES / "listening-jar-04.flac"),
+                                    "--sweep", str(EXAMPLES / "sweep-48k.wav"),
+                                    "--out", str(out)])
+    assert res.exit_code == 2
+    assert "report.pdf" in res.output and "--force" in res.output
+    assert (out / "report.pdf").read_bytes() == b"keep me"
+    assert not (out / "result.json").exists()  # checked before anything is written

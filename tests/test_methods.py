@@ -442,8 +442,9 @@ def test_cli_one_channel_noise_writes_the_result(noise_files, tmp_path: Path) ->
     assert doc["input"]["method"] == "one-channel-excitation"
     assert doc["input"]["excitation"] == str(noise_files["excitation"])
     assert abs(doc["fit"]["f0_hz"] / 1000.0 - 1) < 1e-3
-    assert sorted(p.name for p in out.iterdir()) == ["report.html", "response.png",
-                                                     "result.json", "transfer.csv"]
+    assert sorted(p.name for p in out.iterdir()) == ["report.html", "report.pdf",
+                                                     "response.png", "result.json",
+                                                     "transfer.csv"]
 
 
 def test_inputerror_is_raised_by_the_library_too(noise_files, tmp_path: Path) -> None:

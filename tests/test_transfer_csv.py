@@ -288,3 +288,153 @@ def test_cli_good_csv_writes_the_result(measured, tmp_path: Path) -> None:
     # the CSV the command writes is itself readable
     again = read_transfer_csv(out / "transfer.csv")
     assert again.freqs_hz.size > 100
+
+
+# --------------------------------------------------------------------------
+# Welch (H1/H2) exports carry the smoothing kernel and the noise model
+# --------------------------------------------------------------------------
+
+# f0 Hz, Q, rate Hz, seed, estimator; noise excitation, 30 dB SNR (the H1 acceptance
+# cases of tests/test_methods.py and a few more); for H2 the inside microphone gets
+# 12 dB more signal (H2 is biased by inside noise: Bendat & Piersol 2010, ch. 6)
+WELCH_CASES = [(300.0, 20.0, 16000.0, 4, "h1"), (1200.0, 12.0, 48000.0, 5, "h1"),
+               (600.0, 40.0, 16000.0, 6, "h1"), (150.0, 8.0, 16000.0, 7, "h1"),
+               (820.0, 30.0, 16000.0, 8, "h1"), (600.0, 30.0, 16000.0, 9, "h2")]
+
+
+@pytest.fixture(scope="module")
+def welch(tmp_path_factory) -> dict[int, tuple]:
+    """For each case: (setup, analyze() of the recording, the exported CSV)."""
+    out = {}
+    for f0, q, fs, seed, est in WELCH_CASES:
+        d = tmp_path_factory.mktemp(f"welch{seed}")
+        s = Setup(f0_hz=f0, q=q, rate_hz=fs, excitation="noise", noise_duration_s=4.0,
+                  snr_db=30.0, gain_inside=4.0 if est == "h2" else 1.0)
+        data, _ = simulate(s, seed)
+        rec = d / "rec.wav"
+        write_recording(str(rec), data, fs, "FLOAT")
+        res = analyze(rec, method=est)
+        out[seed] = (s, res, write_transfer_csv(d / "h.csv", res.transfer))
+    return out
+
+
+@pytest.mark.parametrize("seed", [c[3] for c in WELCH_CASES])
+def test_welch_csv_refit_gives_the_original_fit(welch, seed: int) -> None:
+    setup, res, path = welch[seed]
+    tf = res.transfer
+    assert tf.kernel is not None
+    back = read_transfer_csv(path)
+    # the kernel comes back as written (17 significant digits) and in the same form
+    assert back.kernel is not None and back.kernel_form == tf.kernel_form
+    np.testing.assert_allclose(back.kernel[0], tf.kernel[0], rtol=1e-15, atol=1e-12)
+    np.testing.assert_allclose(back.kernel[1], tf.kernel[1], rtol=1e-12, atol=1e-18)
+    a, b = res.fit, analyze(None, transfer_path=path).fit
+    # the refit is the same fit: within a small fraction of the standard error
+    assert abs(b.f0_hz - a.f0_hz) < 0.05 * a.f0_stderr_hz
+    assert abs(b.q - a.q) < 0.05 * a.q_stderr
+    assert abs(b.f0_stderr_hz / a.f0_stderr_hz - 1) < 0.02
+    assert abs(b.q_stderr / a.q_stderr - 1) < 0.02
+    assert b.weighting == a.weighting == "noise-estimate"
+    # and both hold the truth (simulator input)
+    assert abs(b.q - setup.q) < 4 * b.q_stderr
+
+
+def _strip_kernel(path: Path, tmp_path: Path) -> Path:
+    text = path.read_text(encoding="utf-8")
+    out = tmp_path / "no-kernel.csv"
+    out.write_text("".join(ln for ln in text.splitlines(keepends=True)
+                           if not ln.startswith("#")), encoding="utf-8")
+    return out
+
+
+def test_without_the_kernel_h1_q_reads_low(welch, tmp_path: Path) -> None:
+    """What the kernel lines fix: the same file without them fits the Welch-smoothed
+    peak as if it were the true one, so Q reads low (resolution bias, Bendat &
+    Piersol 2010, §8.5), in every H1 case; the file still reads (a plain CSV)."""
+    for f0, q, _, seed, est in WELCH_CASES:
+        if est != "h1":
+            continue
+        _, res, path = welch[seed]
+        plain = read_transfer_csv(_strip_kernel(path, tmp_path))
+        assert plain.kernel is None
+        b = analyze(None, transfer_path=_strip_kernel(path, tmp_path)).fit
+        assert b.q < res.fit.q - 0.5 * res.fit.q_stderr, (f0, q, b.q, res.fit.q)
+
+
+def test_sweep_csv_has_no_kernel_lines(measured, tmp_path: Path) -> None:
+    """A sweep estimate is not smoothed: no comment lines, the header comes first."""
+    _, res, _ = measured[300.0]
+    path = write_transfer_csv(tmp_path / "h.csv", res.transfer)
+    first = path.read_text(encoding="utf-8").splitlines()[0]
+    assert first.startswith("frequency_hz,")
+    assert read_transfer_csv(path).kernel is None
+
+
+def _kernel_file(tmp_path: Path, lines: list[str], extra_cols: str = "",
+                 extra: list[str] | None = None) -> Path:
+    head = "frequency_hz,real,imag" + extra_cols
+    rows = GOOD_ROWS if extra is None else [r + e for r, e in zip(GOOD_ROWS, extra,
+                                                                   strict=True)]
+    p = tmp_path / "k.csv"
+    p.write_text("\n".join(lines + [head] + rows) + "\n", encoding="utf-8")
+    return p
+
+
+KERNEL_OK = ["# characterize.transfer-csv/1", "# kernel_form: linear",
+             "# kernel_offsets_hz: -1 0 1", "# kernel_weights: 0.25 0.5 0.25"]
+
+BAD_KERNEL = {
+    # name: (comment lines, field named, what the message must say)
+    "no-weights": (KERNEL_OK[:3], "kernel_weights", r"missing"),
+    "bad-form": ([KERNEL_OK[0], "# kernel_form: circular", *KERNEL_OK[2:]], "kernel_form",
+                 r"linear.*h2"),
+    "length-mismatch": ([*KERNEL_OK[:3], "# kernel_weights: 0.5 0.5"], "kernel_weights",
+                        r"2 values.*3"),
+    "non-numeric": ([*KERNEL_OK[:3], "# kernel_weights: 0.25 x 0.25"], "kernel_weights",
+                    r"non-numeric"),
+    "negative-weight": ([*KERNEL_OK[:3], "# kernel_weights: 0.25 -0.5 0.25"],
+                        "kernel_weights", r"negative"),
+    "offsets-not-increasing": ([*KERNEL_OK[:2], "# kernel_offsets_hz: 1 0 -1", KERNEL_OK[3]],
+                               "kernel_offsets_hz", r"increas"),
+    "nan-offset": ([*KERNEL_OK[:2], "# kernel_offsets_hz: -1 nan 1", KERNEL_OK[3]],
+                   "kernel_offsets_hz", r"finite"),
+    "twice": ([*KERNEL_OK, "# kernel_form: h2"], "kernel_form", r"twice"),
+}
+
+
+@pytest.mark.parametrize("name", list(BAD_KERNEL))
+def test_bad_kernel_lines_are_one_line_input_errors(tmp_path: Path, name: str) -> None:
+    lines, field, pattern = BAD_KERNEL[name]
+    path = _kernel_file(tmp_path, lines)
+    with pytest.raises(InputError) as err:
+        read_transfer_csv(path)
+    msg = str(err.value)
+    assert "\n" not in msg and err.value.source == str(path)
+    assert err.value.field == field, msg
+    assert re.search(pattern, msg, re.IGNORECASE), msg
+
+
+def test_kernel_lines_read_and_weights_normalised(tmp_path: Path) -> None:
+    lines = [*KERNEL_OK[:3], "# kernel_weights: 1 2 1"]  # sums to 4: normalised to 1
+    tf = read_transfer_csv(_kernel_file(tmp_path, lines))
+    assert tf.kernel is not None and tf.kernel_form == "linear"
+    np.testing.assert_allclose(tf.kernel[0], [-1.0, 0.0, 1.0])
+    np.testing.assert_allclose(tf.kernel[1], [0.25, 0.5, 0.25])
+    # other comment lines are ignored, as before
+    tf2 = read_transfer_csv(_kernel_file(tmp_path, ["# exported by an analyzer"]))
+    assert tf2.kernel is None
+
+
+def test_noise_columns_come_in_pairs_and_are_checked(tmp_path: Path) -> None:
+    with pytest.raises(InputError, match="noise_a and noise_b") as err:
+        read_transfer_csv(_kernel_file(tmp_path, [], ",noise_a", [",1e-4"] * len(GOOD_ROWS)))
+    assert err.value.field == "header"
+    with pytest.raises(InputError, match="negative") as err:
+        read_transfer_csv(_kernel_file(tmp_path, [], ",noise_a,noise_b",
+                                       [",1e-4,-1e-4"] * len(GOOD_ROWS)))
+    assert err.value.field == "noise_b"
+    tf = read_transfer_csv(_kernel_file(tmp_path, [], ",noise_a,noise_b,reference_db",
+                                        [",1e-4,2e-4,-20"] * len(GOOD_ROWS)))
+    np.testing.assert_allclose(tf.noise_a, 1e-4)
+    np.testing.assert_allclose(tf.noise_b, 2e-4)
+    np.testing.assert_allclose(tf.reference_db, -20.0)

@@ -15,6 +15,7 @@ seeded simulator at 16 kHz (short and fast).
 
 from __future__ import annotations
 
+import base64
 import itertools
 import json
 import math
@@ -26,9 +27,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 from click.testing import CliRunner
+from html_page import HtmlPage
 
 from characterize import SCHEMA
 from characterize.cli import main
+from characterize.commands.levels import CAUTION
 from characterize.physics.air import air_state
 from characterize.physics.geometry import load_object
 from characterize.physics.helmholtz import helmholtz_f0_hz
@@ -430,3 +433,102 @@ def test_command_modules_are_light() -> None:
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          check=True).stdout.strip()
     assert out == ""
+
+
+# ==========================================================================
+# report.html and report.pdf of series and levels
+# ==========================================================================
+
+
+def _check_report(out: Path, png_name: str) -> tuple[str, str]:
+    """report.html is self-contained (the plot embedded byte for byte as a data URI,
+    no scripts, scoped headers); report.pdf is a PDF whose last page holds the plot.
+    Returns the page's text and the PDF's text."""
+    from pypdf import PdfReader
+
+    page = HtmlPage()
+    page.feed((out / "report.html").read_text(encoding="utf-8"))
+    assert page.scripts == 0
+    assert len(page.imgs) == 1 and len(page.imgs[0].get("alt", "")) > 40
+    src = page.imgs[0]["src"]
+    assert src.startswith("data:image/png;base64,")
+    assert base64.b64decode(src.split(",", 1)[1]) == (out / png_name).read_bytes()
+    assert page.th_scopes and all(s in ("col", "row") for s in page.th_scopes)
+    pdf = out / "report.pdf"
+    assert pdf.read_bytes()[:5] == b"%PDF-"  # the PDF signature (ISO 32000-1, 7.5.2)
+    reader = PdfReader(str(pdf))
+    assert len(reader.pages) >= 2 and len(reader.pages[-1].images) == 1
+    pdf_text = " ".join(" ".join(p.extract_text().split()) for p in reader.pages)
+    assert f"page 1 of {len(reader.pages)}" in pdf_text
+    return " ".join("".join(page.text).split()), pdf_text
+
+
+def test_series_reports(series_out: tuple[Path, str]) -> None:
+    out, _ = series_out
+    doc = json.loads((out / "series.json").read_text())
+    html, pdf = _check_report(out, "series.png")
+    delta_mm = f"{1e3 * doc['end_correction_m']:.3f}"
+    for text in (html, pdf):
+        assert f"end correction δ = {delta_mm}" in text  # the fitted value, as printed
+        assert all(p["id"] in text for p in doc["points"])
+        assert "temperature-spread" in text  # the example's flag (a 2.8 K drift)
+        assert "hearing protection" not in text  # no drive-level caution on a series
+
+
+def test_levels_reports_carry_the_caution(tmp_path: Path) -> None:
+    out = tmp_path / "lv"
+    code, _, err = run("levels", LEVELS / "manifest.csv", "--out", out)
+    assert code == 0, err
+    doc = json.loads((out / "levels.json").read_text())
+    html, pdf = _check_report(out, "levels.png")
+    for text in (html, pdf):
+        # the example reaches 136 dB: the caution of the levels command is on the report
+        assert " ".join(CAUTION.split()) in text
+        assert f"{doc['onset_spl_db']:.2f}" in text
+    # the force table's report: its own table and plot, and the caution (up to 140 dB)
+    out2 = tmp_path / "pl"
+    code, _, err = run("levels", LEVELS / "balance.csv", "--out", out2)
+    assert code == 0, err
+    doc2 = json.loads((out2 / "levels.json").read_text())
+    html, pdf = _check_report(out2, "levels.png")
+    assert f"n = {doc2['exponent']:.3f}" in html and f"n = {doc2['exponent']:.3f}" in pdf
+    assert (" ".join(CAUTION.split()) in html) == (max(doc2["spl_db"]) >= 110)
+
+
+def test_level_report_without_high_levels_has_no_caution() -> None:
+    from characterize.report.tuning_report import levels_page, power_law_page
+    from characterize.tuning import LevelPoint, fit_power_law, level_study
+
+    spl = np.array([70.0, 76.0, 82.0, 88.0, 94.0])
+    pts = [LevelPoint(f"p{k}", float(s), "manifest", 243.0, 0.01, 38.0 - 0.01 * k, 0.05)
+           for k, s in enumerate(spl)]
+    assert levels_page(level_study(pts), "m.csv").caution is None
+    p = 20e-6 * 10 ** (spl / 20)
+    assert power_law_page(fit_power_law(spl, 1e-8 * p**2), "f.csv").caution is None
+    loud = [LevelPoint("loud", 110.0, "manifest", 243.0, 0.01, 37.0, 0.05)]
+    assert levels_page(level_study(pts + loud), "m.csv").caution == CAUTION
+
+
+@pytest.mark.parametrize("command", [("series", str(TRIM / "manifest.csv"), "--vary",
+                                      "neck-length"),
+                                     ("levels", str(LEVELS / "manifest.csv"))])
+@pytest.mark.parametrize("name", ["report.html", "report.pdf"])
+def test_study_reports_are_not_overwritten(tmp_path: Path, command: tuple[str, ...],
+                                           name: str) -> None:
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / name).write_text("keep me", encoding="utf-8")
+    code, _, err = run(*command, "--out", out)
+    assert_one_line_error(code, err, name, "--force")
+    assert (out / name).read_text(encoding="utf-8") == "keep me"
+    assert sorted(p.name for p in out.iterdir()) == [name]  # nothing written before the check
+    code, _, err = run(*command, "--out", out, "--force")
+    assert code == 0, err
+    assert (out / name).read_bytes()[:2] in (b"<!", b"%P")
+
+
+def test_study_report_unwritable_is_one_line(tmp_path: Path) -> None:
+    out = tmp_path / "out"
+    (out / "report.pdf").mkdir(parents=True)  # a directory where the PDF should go
+    code, _, err = run("series", TRIM / "manifest.csv", "--vary", "neck-length", "--out", out)
+    assert_one_line_error(code, err, "report.pdf", "directory")

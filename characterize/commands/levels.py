@@ -9,61 +9,10 @@ from typing import Any
 
 import click
 
+# the caution lives with the study's report text (a light module: no numpy at import)
+from ..report.tuning_report import CAUTION_SPL_DB
+from ..report.tuning_report import LEVELS_CAUTION as CAUTION
 from ._errors import handles_errors
-
-CAUTION = (
-    "CAUTION: drive-level studies mean 110 dB and more near the loudspeaker and up to "
-    "130-150 dB inside the cavity. Wear hearing protection, keep exposures short (e.g. "
-    "NIOSH: 85 dB(A) for 8 h, 3 dB exchange rate, about 1.5 min at 110 dB(A)), step the "
-    "level up from low, never leave a drive running unattended, and follow your local "
-    "occupational-noise regulations, which take precedence."
-)
-
-
-def _level_text(s: Any) -> str:
-    lines = [
-        f"level study, {len(s.points)} levels from {s.points[0].spl_db:.1f} to "
-        f"{s.points[-1].spl_db:.1f} dB (cavity SPL)",
-        f"  small-signal Q0 = {s.q_small_signal:.3f} ± {s.q_small_signal_stderr:.3f}; "
-        f"1/Q grows by {s.q_slope_per_pa:.4g} ± {s.q_slope_stderr_per_pa:.2g} per Pa (rms)",
-    ]
-    if s.onset_spl_db == s.onset_spl_db:
-        xd = s.onset_displacement_over_diameter
-        lines.append(f"  onset (Q down {100 * s.q_drop_fraction:.0f} %): {s.onset_spl_db:.2f} ± "
-                     f"{s.onset_spl_stderr_db:.2f} dB ({s.onset_pressure_pa:.3g} Pa rms"
-                     + (f", neck displacement {xd:.3g} of the diameter" if xd == xd else "") + ")")
-    else:
-        lines.append("  onset: no Q drop detected"
-                     + (f" (above about {s.onset_lower_bound_spl_db:.0f} dB)"
-                        if s.onset_lower_bound_spl_db == s.onset_lower_bound_spl_db else ""))
-    lines.append(f"  f0 moves {s.f0_shift_hz:+.3f} ± {s.f0_shift_stderr_hz:.3f} Hz over the range")
-    lines.append(f"  {'id':<16} {'SPL (dB)':>9} {'f0 (Hz)':>18} {'Q':>14} {'xi/d':>8} "
-                 f"{'stud.':>6}")
-    for p, t in zip(s.points, s.line.studentized):
-        lines.append(f"  {p.id:<16} {p.spl_db:>9.1f} {p.f0_hz:>10.3f} ± {p.f0_stderr_hz:<5.3f} "
-                     f"{p.q:>7.2f} ± {p.q_stderr:<4.2f} {p.displacement_over_diameter:>8.4f} "
-                     f"{t:>6.2f}")
-    from ..report.text import flag_lines
-
-    lines += flag_lines(s.flags)
-    return "\n".join(lines)
-
-
-def _power_text(p: Any) -> str:
-    verdict = ("consistent with" if p.consistent_with_square_law else "not consistent with")
-    lines = [
-        f"power law, {len(p.spl_db)} readings ({p.quantity}) from {min(p.spl_db):.1f} to "
-        f"{max(p.spl_db):.1f} dB",
-        f"  F = {p.coefficient_n:.4g} N x (p / 1 Pa)^n with n = {p.exponent:.3f} ± "
-        f"{p.exponent_stderr:.3f} against pressure",
-        f"  force ratio per 10 dB: {p.ratio_per_10_db:.2f} ± {p.ratio_per_10_db_stderr:.2f}",
-        f"  expected for a second-order effect (common practice): n = 2, tenfold per 10 dB; "
-        f"the fit is {verdict} it ({p.z_vs_expected:+.1f} standard errors)",
-    ]
-    from ..report.text import flag_lines
-
-    lines += flag_lines(p.flags)
-    return "\n".join(lines)
 
 
 @click.command("levels", help=f"""Drive-level study from MANIFEST.csv.
@@ -85,13 +34,14 @@ for every 10 dB).
 """)
 @click.argument("manifest", metavar="MANIFEST.csv", type=click.Path(path_type=Path))
 @click.option("--out", "out_dir", type=click.Path(file_okay=False, path_type=Path),
-              help="Write DIR/levels.json and DIR/levels.png.")
+              help="Write DIR/levels.json, levels.png, report.html and report.pdf.")
 @click.option("--json", "as_json", is_flag=True, help="Print the study as JSON.")
 @click.option("--force", is_flag=True, help="Overwrite existing outputs in --out.")
 @handles_errors
 def levels(manifest: Path, out_dir: Path | None, as_json: bool, force: bool) -> None:
     from ..errors import FitError, InputError
     from ..fileio import check_writable
+    from ..report import tuning_report
     from ..report.document import to_json, write_document
     from ..tuning import (
         check_points,
@@ -108,7 +58,8 @@ def levels(manifest: Path, out_dir: Path | None, as_json: bool, force: bool) -> 
     if out_dir is not None:
         if out_dir.exists() and not out_dir.is_dir():
             raise InputError(str(out_dir), None, "--out must be a directory")
-        targets = [out_dir / "levels.json", out_dir / "levels.png"]
+        targets = [out_dir / "levels.json", out_dir / "levels.png", out_dir / "report.html",
+                   out_dir / "report.pdf"]
         for t in targets:
             check_writable(t, force=force)
     failures: list[Any] = []
@@ -116,7 +67,7 @@ def levels(manifest: Path, out_dir: Path | None, as_json: bool, force: bool) -> 
         table = read_force_table(manifest)
         result: Any = fit_power_law(table.spl_db, table.force_n, table.force_stderr_n,
                                     quantity=table.quantity, source=str(manifest))
-        text = _power_text(result)
+        text = tuning_report.power_law_text(result)
         top = max(table.spl_db)
     else:
         rows = read_manifest(manifest, {"spl_db": "db"})
@@ -133,24 +84,28 @@ def levels(manifest: Path, out_dir: Path | None, as_json: bool, force: bool) -> 
                            f"measured ({failures[0].id}: {failures[0].reason})")
         result = level_study(points, source=str(manifest),
                              failures=[f.to_dict() for f in failures])
-        text = _level_text(result)
+        text = tuning_report.levels_text(result)
         top = result.points[-1].spl_db
     doc = result.to_dict()
     if out_dir is not None:
         from ..report import tuning_plots
+        from ..report.page import png_bytes
 
         write_document(targets[0], doc)
         if doc["schema"] == "characterize.levels/1":
             tuning_plots.levels_plot(result, targets[1])
+            page = tuning_report.levels_page(result, str(manifest), png_bytes(targets[1]))
         else:
             tuning_plots.power_law_plot(result, targets[1])
+            page = tuning_report.power_law_page(result, str(manifest), png_bytes(targets[1]))
+        tuning_report.write_study_reports(page, targets[2], targets[3])
     if as_json:
         click.echo(to_json(doc), nl=False)
     else:
         click.echo(text)
         if out_dir is not None:
-            click.echo(f"wrote {targets[0]} and {targets[1]}")
-    if top >= 110.0:
+            click.echo("wrote " + ", ".join(str(t) for t in targets))
+    if top >= CAUTION_SPL_DB:
         click.echo(CAUTION, err=True)
     if failures:
         sys.exit(1)

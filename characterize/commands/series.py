@@ -4,58 +4,10 @@ from __future__ import annotations
 
 import sys
 from pathlib import Path
-from typing import Any
 
 import click
 
 from ._errors import handles_errors
-
-
-def _text(s: Any) -> str:
-    mm, ml = 1e3, 1e6
-    trim = s.vary == "neck-length"
-    line = s.line
-    lines = [
-        f"{'trim' if trim else 'fill'} series, {len(s.points)} points, weighted by "
-        f"{'the f0 standard errors' if line.weighting == 'stated-errors' else 'equal weights'}; "
-        f"f0 brought to c = {s.reference_speed_of_sound_m_s:.2f} m/s "
-        f"({s.reference_temperature_c:.1f} °C)",
-        f"  line: 1/f0² = {line.slope:.6g} x + {line.intercept:.6g} s² "
-        f"(reduced chi-square {line.reduced_chi2:.2f}, errors scaled by {line.stderr_scale:.2f})",
-    ]
-    if trim:
-        lines.append(f"  end correction δ = {s.end_correction_m * mm:.3f} ± "
-                     f"{s.end_correction_stderr_m * mm:.3f} mm"
-                     + (f" = {s.end_correction_over_radius:.3f} ± "
-                        f"{s.end_correction_over_radius_stderr:.3f} neck radii"
-                        if s.end_correction_over_radius == s.end_correction_over_radius else ""))
-        lines.append(f"  V/S = {s.volume_over_area_m:.5g} ± {s.volume_over_area_stderr_m:.2g} m"
-                     + (f" (V = {s.volume_m3 * ml:.1f} ± {s.volume_stderr_m3 * ml:.1f} mL)"
-                        if s.volume_m3 == s.volume_m3 else ""))
-    else:
-        lines.append(f"  L_eff/S = {s.effective_length_over_area_m_inv:.5g} ± "
-                     f"{s.effective_length_over_area_stderr_m_inv:.2g} 1/m, empty volume V0 = "
-                     f"{s.volume_m3 * ml:.2f} ± {s.volume_stderr_m3 * ml:.2f} mL")
-        if s.effective_neck_length_m == s.effective_neck_length_m:
-            lines.append(f"  L_eff = {s.effective_neck_length_m * mm:.3f} ± "
-                         f"{s.effective_neck_length_stderr_m * mm:.3f} mm"
-                         + (f", end correction {s.end_correction_m * mm:.3f} mm = "
-                            f"{s.end_correction_over_radius:.3f} neck radii"
-                            if s.end_correction_m == s.end_correction_m else ""))
-    if s.textbook_end_correction_m == s.textbook_end_correction_m:
-        lines.append(f"  textbook end correction for this geometry: "
-                     f"{s.textbook_end_correction_m * mm:.3f} mm")
-    unit, scale = ("mm", mm) if trim else ("mL", ml)
-    lines.append(f"  {'id':<16} {'value':>9} {'f0 (Hz)':>18} {'T (°C)':>7} {'residual':>9} "
-                 f"{'stud.':>6}")
-    for p, r, t in zip(s.points, line.normalized_residuals, line.studentized):
-        mark = "  outlier" if t == t and abs(t) > 3 else ""
-        lines.append(f"  {p.id:<16} {p.value * scale:>6.2f} {unit} {p.f0_hz:>10.3f} ± "
-                     f"{p.f0_stderr_hz:<5.3f} {p.temperature_c:>7.1f} {r:>8.2f}σ {t:>6.2f}{mark}")
-    from ..report.text import flag_lines
-
-    lines += flag_lines(s.flags)
-    return "\n".join(lines)
 
 
 @click.command("series")
@@ -65,7 +17,7 @@ def _text(s: Any) -> str:
                    "e.g. '36 mm') or the filled volume (column fill_volume, e.g. '50 mL').")
 @click.option("--json", "as_json", is_flag=True, help="Print the series document.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False, path_type=Path),
-              help="Write DIR/series.json and DIR/series.png.")
+              help="Write DIR/series.json, series.png, report.html and report.pdf.")
 @click.option("--force", is_flag=True, help="Overwrite existing outputs in --out.")
 @handles_errors
 def series(manifest: Path, vary: str, as_json: bool, out_dir: Path | None, force: bool) -> None:
@@ -87,7 +39,8 @@ def series(manifest: Path, vary: str, as_json: bool, out_dir: Path | None, force
     if out_dir is not None:
         if out_dir.exists() and not out_dir.is_dir():
             raise InputError(str(out_dir), None, "--out must be a directory")
-        targets = [out_dir / "series.json", out_dir / "series.png"]
+        targets = [out_dir / "series.json", out_dir / "series.png", out_dir / "report.html",
+                   out_dir / "report.pdf"]
         for t in targets:
             check_writable(t, force=force)
     rows = read_manifest(manifest, {column: kind}, required_values=(column,))
@@ -109,15 +62,21 @@ def series(manifest: Path, vary: str, as_json: bool, out_dir: Path | None, force
                      failures=[f.to_dict() for f in failures])
     doc = fit.to_dict()
     if out_dir is not None:
+        from ..report.page import png_bytes
         from ..report.tuning_plots import series_plot
+        from ..report.tuning_report import series_page, write_study_reports
 
         write_document(targets[0], doc)
         series_plot(fit, targets[1])
+        write_study_reports(series_page(fit, str(manifest), png_bytes(targets[1])),
+                            targets[2], targets[3])
     if as_json:
         click.echo(to_json(doc), nl=False)
     else:
-        click.echo(_text(fit))
+        from ..report.tuning_report import series_text
+
+        click.echo(series_text(fit))
         if out_dir is not None:
-            click.echo(f"wrote {targets[0]} and {targets[1]}")
+            click.echo("wrote " + ", ".join(str(t) for t in targets))
     if failures:
         sys.exit(1)

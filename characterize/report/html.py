@@ -28,14 +28,17 @@ STATUS_TEXT = {"pass": "✓ PASS", "fail": "✗ FAIL", "error": "⚠ ERROR"}
 
 CSP = "default-src 'none'; img-src data:; style-src 'unsafe-inline'"
 
-_TEMPLATE = """<!DOCTYPE html>
+#: The start of every report page: UTF-8, phone viewport, the CSP, the generator.
+HEAD = """<!DOCTYPE html>
 <html lang="en">
 <head>
 <meta charset="utf-8">
 <meta name="viewport" content="width=device-width, initial-scale=1">
 <meta http-equiv="Content-Security-Policy" content="{{ csp|safe }}">
 <meta name="generator" content="characterize {{ version }}">
-<title>Batch report: {{ spec.name }}</title>
+"""
+
+_TEMPLATE = HEAD + """<title>Batch report: {{ spec.name }}</title>
 <style>
 :root { --paper: #fbf8f1; --ink: #1f3b5b; --fit: #d4462a; --band: #eadcb5;
         --grid: #d9d2c3; --muted: #5e574b; --pass: #2f6b3a; }
