@@ -128,7 +128,8 @@ def make_sweep(params: SweepParams) -> Sweep:
     n = int(round(params.duration_s * fs))
     t = np.arange(n) / fs
     r = params.sweep_rate
-    phase = 2 * np.pi * params.start_hz * params.duration_s / r * np.expm1(t * r / params.duration_s)
+    phase = (2 * np.pi * params.start_hz * params.duration_s / r
+             * np.expm1(t * r / params.duration_s))
     x = np.sin(phase)
     n_in = int(round(params.fade_in_s * fs))
     n_out = int(round(params.fade_out_s * fs))

@@ -272,7 +272,8 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
         Readable data but no fit (exit status 1).
     """
     if tolerance is not None and not (0 < tolerance < 1):
-        raise InputError("--tolerance", None, f"must be a fraction between 0 and 1, got {tolerance}")
+        raise InputError("--tolerance", None,
+                         f"must be a fraction between 0 and 1, got {tolerance}")
     if modes is not None and (modes < 1 or modes > 6):
         raise InputError("--modes", None, f"must be 1 to 6, got {modes}")
     if window_s is not None and not (math.isfinite(window_s) and window_s > 0):

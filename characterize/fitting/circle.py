@@ -82,12 +82,13 @@ def circle_fit(freqs_hz: NDArray[np.float64], h: NDArray[np.complex128], f0_hz: 
     above = f > f_res
     below = f < f_res
     zetas = []
-    for fa, ta in zip(f[above], theta[above]):
-        for fb, tb in zip(f[below], theta[below]):
+    for fa, ta in zip(f[above], theta[above], strict=True):
+        for fb, tb in zip(f[below], theta[below], strict=True):
             if ta < 0.2 or tb < 0.2:
                 continue
             wa, wb = 2 * math.pi * fa, 2 * math.pi * fb
-            zetas.append((wa**2 - wb**2) / (2 * w0 * (wa * math.tan(ta / 2) + wb * math.tan(tb / 2))))
+            den = 2 * w0 * (wa * math.tan(ta / 2) + wb * math.tan(tb / 2))
+            zetas.append((wa**2 - wb**2) / den)
     if len(zetas) < 3:
         raise FitError("too few point pairs around the resonance for a circle fit")
     zeta = float(np.median(zetas))

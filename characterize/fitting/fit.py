@@ -283,7 +283,8 @@ def fit_transfer(tf: TransferFunction, band_hz: tuple[float, float] | None = Non
             return residual_at(v, f, h, sig, sign, kern, tf.kernel_form)
 
         mini = lmfit.Minimizer(residual, params, scale_covar=False, nan_policy="raise")
-        result = mini.minimize(method="least_squares", x_scale="jac", ftol=1e-12, xtol=1e-12, gtol=1e-12)
+        result = mini.minimize(method="least_squares", x_scale="jac", ftol=1e-12, xtol=1e-12,
+                               gtol=1e-12)
         if not result.success:
             raise FitError(f"the fit did not converge ({result.message})")
         pv = result.params

@@ -89,7 +89,8 @@ def find_resonances(tf: TransferFunction, band_hz: tuple[float, float] | None = 
     out = []
     for i, pk in enumerate(peaks):
         width_hz = max(widths[i] * df[i], df[i])
-        out.append((float(f[pk]), float(max(f[pk] / width_hz, 0.5)), float(props["prominences"][i])))
+        out.append((float(f[pk]), float(max(f[pk] / width_hz, 0.5)),
+                    float(props["prominences"][i])))
     out.sort(key=lambda t: -t[2])
     return [(fr, q) for fr, q, _ in out]
 

@@ -82,7 +82,7 @@ def matrix_pencil(x: NDArray[np.float64], rate_hz: float, n_modes: int,
     vand = z[None, :] ** k
     amp, *_ = np.linalg.lstsq(vand, x.astype(np.complex128), rcond=None)
     out = []
-    for si, ai in zip(s, amp):
+    for si, ai in zip(s, amp, strict=True):
         if si.imag <= 0 or si.real >= 0:
             continue
         f0 = abs(si) / (2 * math.pi)

@@ -127,7 +127,7 @@ def decay_plot(result: Result, path: str | Path) -> Path:
     decays = result.decays
     n = max(1, len(decays))
     fig, axes = _figure(n, [1.0] * n, (7.2, 1.0 + 1.8 * n))
-    for ax, d in zip(np.atleast_1d(axes), decays):
+    for ax, d in zip(np.atleast_1d(axes), decays, strict=False):  # one empty axis when no decays
         i0 = int(d["start_s"] * fs)
         i1 = i0 + int(d["length_s"] * fs)
         t = np.arange(i1 - i0) / fs
