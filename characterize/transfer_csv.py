@@ -9,7 +9,8 @@ Our own export (``characterize.transfer-csv/1``, docs/result-schema.md) adds wha
 a refit needs to give the original fit's numbers: the columns ``noise_a``,
 ``noise_b`` (the per-bin noise model, :class:`~.transfer.TransferFunction`) and
 ``reference_db`` (the outside channel's level), and, for a Welch (H1/H2)
-estimate, the smoothing kernel the fit applies to its model, in comment lines
+estimate, ``coherence`` (so that a refit raises the same coherence flags) and
+the smoothing kernel the fit applies to its model, in comment lines
 before the header::
 
     # characterize.transfer-csv/1
@@ -47,7 +48,7 @@ _PATTERNS = {
 FORMAT = "characterize.transfer-csv/1"
 KERNEL_FORMS = ("linear", "h2")
 #: Our own extra columns, read by exact name (case-insensitive).
-EXTRA_COLUMNS = ("noise_a", "noise_b", "reference_db")
+EXTRA_COLUMNS = ("noise_a", "noise_b", "reference_db", "coherence")
 _KERNEL_LINE = re.compile(r"^#\s*(kernel_form|kernel_offsets_hz|kernel_weights)\s*:\s*(.*)$",
                           re.I)
 HEADER_HELP = ("expected a header with 'frequency_hz' and either 'real','imag' or "
@@ -153,9 +154,13 @@ def read_transfer_csv(path: str | Path) -> TransferFunction:
     else:
         noise_a = noise_b = np.full(f.size, np.nan)
     reference_db = col.get("reference_db", np.zeros(f.size))
+    coherence = col.get("coherence")
+    if coherence is not None and np.any((coherence < 0) | (coherence > 1)):
+        k = int(np.flatnonzero((coherence < 0) | (coherence > 1))[0]) + 2
+        raise InputError(str(p), f"row {k}", "coherence must lie between 0 and 1")
     return TransferFunction(f, h.astype(np.complex128), noise_a, noise_b,
                             (float(f[0]), float(f[-1])), "csv", reference_db,
-                            kernel=kernel, kernel_form=kernel_form)
+                            coherence=coherence, kernel=kernel, kernel_form=kernel_form)
 
 
 def _read_kernel(p: Path, lines: list[str]
@@ -204,7 +209,8 @@ def _read_kernel(p: Path, lines: list[str]
 def write_transfer_csv(path: str | Path, tf: TransferFunction) -> Path:
     """Write H inside its excited band as CSV with columns frequency_hz, real,
     imag, magnitude_db, phase_deg (and sigma, noise_a, noise_b when the noise is
-    known, reference_db when the reference level is), and the estimator's
+    known, reference_db when the reference level is, coherence when the
+    estimator gave one), and the estimator's
     smoothing kernel in comment lines before the header (module docstring)."""
     buf = io.StringIO()
     lo, hi = tf.excited_band_hz
@@ -224,6 +230,8 @@ def write_transfer_csv(path: str | Path, tf: TransferFunction) -> Path:
     ref = np.asarray(tf.reference_db, dtype=np.float64)
     if ref.shape == tf.freqs_hz.shape and np.all(np.isfinite(ref[keep])):
         extra["reference_db"] = ref
+    if tf.coherence is not None and np.all(np.isfinite(tf.coherence[keep])):
+        extra["coherence"] = np.asarray(tf.coherence, dtype=np.float64)
     w.writerow(["frequency_hz", "real", "imag", "magnitude_db", "phase_deg"]
                + (["sigma"] if has_sigma else []) + list(extra))
     with np.errstate(divide="ignore"):

@@ -337,6 +337,14 @@ def test_welch_csv_refit_gives_the_original_fit(welch, seed: int) -> None:
     assert b.weighting == a.weighting == "noise-estimate"
     # and both hold the truth (simulator input)
     assert abs(b.q - setup.q) < 4 * b.q_stderr
+    # the coherence comes back (9 significant digits), so the refit raises the same
+    # coherence-based flags
+    assert back.coherence is not None
+    lo, hi = tf.excited_band_hz  # the rows written: finite H inside the excited band
+    keep = np.isfinite(tf.h) & (tf.freqs_hz >= lo) & (tf.freqs_hz <= hi)
+    np.testing.assert_allclose(back.coherence, tf.coherence[keep], rtol=1e-8)
+    assert res.quality["coherence_min_in_band"] == pytest.approx(
+        analyze(None, transfer_path=path).quality["coherence_min_in_band"], rel=1e-8)
 
 
 def _strip_kernel(path: Path, tmp_path: Path) -> Path:
@@ -438,3 +446,7 @@ def test_noise_columns_come_in_pairs_and_are_checked(tmp_path: Path) -> None:
     np.testing.assert_allclose(tf.noise_a, 1e-4)
     np.testing.assert_allclose(tf.noise_b, 2e-4)
     np.testing.assert_allclose(tf.reference_db, -20.0)
+    with pytest.raises(InputError, match="coherence must lie between 0 and 1") as err:
+        read_transfer_csv(_kernel_file(tmp_path, [], ",coherence",
+                                       [",0.5"] * (len(GOOD_ROWS) - 1) + [",1.5"]))
+    assert err.value.field == f"row {len(GOOD_ROWS) + 1}"
