@@ -430,8 +430,10 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
         from .fitting.circle import circle_fit
 
         try:
+            with np.errstate(invalid="ignore"):
+                sig = tf.sigma(np.abs(fit.model(tf.freqs_hz)))
             circle = circle_fit(tf.freqs_hz, tf.h, fit.f0_hz, fit.q, fit.delay_s,
-                                -1.0 if fit.polarity_inverted else 1.0)
+                                -1.0 if fit.polarity_inverted else 1.0, sigma=sig)
         except FitError:
             circle = None
     quality = signal_quality(tf, fit)
