@@ -61,10 +61,10 @@ BOOTSTRAP_REPLICAS = 48
 
 def _estimate(f: NDArray[np.float64], b: NDArray[np.complex128]
               ) -> tuple[float, float, NDArray[np.float64]]:
-    """f0, Q and the pair damping estimates of the circle through the points ``b = j f H`` at frequencies ``f``
-    (sorted): the resonance where the angle around the centre meets the
-    direction of the centre, and Q from the median of the point-pair damping
-    estimates (module docstring)."""
+    """f0, Q and the pair damping estimates of the circle through the points
+    ``b = j f H`` at frequencies ``f`` (sorted): the resonance where the angle
+    around the centre meets the direction of the centre, and Q from the median
+    of the point-pair damping estimates (module docstring)."""
     c, _ = fit_circle_points(b)
     ang = np.unwrap(np.angle(b - c))
     # resonance: the circle point opposite the origin, i.e. angle of c itself
