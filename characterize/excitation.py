@@ -9,7 +9,7 @@ swept-sine technique", AES 108th Convention, preprint 5093 (2000).
 from __future__ import annotations
 
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
 from dataclasses import asdict, dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -192,6 +192,36 @@ ESTIMATE_EDGE_FRACTION = 1e-3
 ESTIMATE_MAX_LOG_RESIDUAL = 0.05
 
 
+#: Samples per block of the analytic signal in :func:`estimate_params`, and the
+#: margin on each side dropped from each block (the Hilbert transform's kernel
+#: decays as 1/t: its edge error is small this far in).
+ESTIMATE_BLOCK = 1 << 20
+ESTIMATE_MARGIN = 1 << 15
+#: At most this many instantaneous-frequency samples enter the straight-line fit.
+ESTIMATE_MAX_POINTS = 1 << 22
+
+
+def _analytic_blocks(x: NDArray[np.floating], lo: int, hi: int
+                     ) -> Iterator[tuple[int, NDArray[np.complex128]]]:
+    """The analytic signal of ``x`` over [lo, hi), block by block, in double
+    precision: (first sample, values). One block (exactly scipy.signal.hilbert
+    of the stretch) when it fits."""
+    from scipy.signal import hilbert
+
+    if hi - lo <= ESTIMATE_BLOCK + 2 * ESTIMATE_MARGIN:
+        yield lo, hilbert(np.asarray(x[lo:hi], dtype=np.float64))
+        return
+    for a in range(lo, hi, ESTIMATE_BLOCK):
+        b = min(a + ESTIMATE_BLOCK, hi)
+        a0, b0 = max(lo, a - ESTIMATE_MARGIN), min(hi, b + ESTIMATE_MARGIN)
+        yield a, hilbert(np.asarray(x[a0:b0], dtype=np.float64))[a - a0: b - a0]
+
+
+def _first_last(mask: NDArray[np.bool_]) -> tuple[int, int]:
+    """First index where ``mask`` holds and one past the last (mask not all False)."""
+    return int(np.argmax(mask)), int(mask.size - np.argmax(mask[::-1]))
+
+
 def estimate_params(samples: NDArray[np.floating], rate_hz: float,
                     source: str = "sweep") -> SweepParams:
     """Read an exponential sweep's band and timing off its samples alone.
@@ -199,34 +229,64 @@ def estimate_params(samples: NDArray[np.floating], rate_hz: float,
     The instantaneous frequency (from the analytic signal's phase) of an
     exponential sweep is :math:`f_1 e^{tR/T}`: its logarithm is fitted as a
     straight line over the middle of the active part and extrapolated to the
-    active part's ends (Farina 2000 for the law).
+    active part's ends (Farina 2000 for the law). Long sweeps are read block by
+    block (``ESTIMATE_BLOCK``), and at most ``ESTIMATE_MAX_POINTS`` evenly
+    spaced samples of the instantaneous frequency enter the line fit, so the
+    memory stays near the sweep's own size.
     """
-    from scipy.signal import hilbert
-
-    x = np.asarray(samples, dtype=np.float64)
-    env = np.abs(hilbert(x))
-    peak = float(np.max(env)) if x.size else 0.0
-    if peak <= 0:
+    x = np.asarray(samples)
+    if not np.issubdtype(x.dtype, np.floating):
+        x = x.astype(np.float64)
+    if x.size == 0 or not np.any(x):
         raise InputError(source, None, "the sweep file is silent")
     k = max(1, int(rate_hz * 0.002))
-    smooth = np.convolve(env, np.ones(k) / k, mode="same")
     # the law is fitted where the envelope is above 10 % of its peak (clear of the
     # fades); the sweep's ends are where the samples first and last leave silence
     # (fades included), and the law extrapolated there gives the start and stop
-    active = np.flatnonzero(smooth > 0.1 * peak)
-    i0, i1 = int(active[0]), int(active[-1]) + 1
+    if x.size <= ESTIMATE_BLOCK + 2 * ESTIMATE_MARGIN:
+        env = np.abs(next(_analytic_blocks(x, 0, x.size))[1])
+        smooth = np.convolve(env, np.ones(k) / k, mode="same")
+    else:  # single precision is plenty for a threshold at 10 % of the peak
+        env = np.empty(x.size, dtype=np.float32)
+        for first, z in _analytic_blocks(x, 0, x.size):
+            env[first:first + z.size] = np.abs(z)
+        smooth = np.empty_like(env)
+        box = np.ones(k) / k
+        for a in range(0, env.size, ESTIMATE_BLOCK):  # np.convolve "same", block by block
+            lo, hi = max(0, a - k), min(env.size, a + ESTIMATE_BLOCK + k)
+            seg = np.convolve(env[lo:hi], box, mode="same")
+            smooth[a:a + ESTIMATE_BLOCK] = seg[a - lo:a - lo + min(ESTIMATE_BLOCK, env.size - a)]
+    peak = float(np.max(env))
+    i0, i1 = _first_last(smooth > 0.1 * peak)
+    del env, smooth
     if i1 - i0 < 0.05 * rate_hz:
         raise InputError(source, None, "no sweep found (active part shorter than 50 ms)")
-    loud = np.flatnonzero(np.abs(x) > ESTIMATE_EDGE_FRACTION * float(np.max(np.abs(x))))
-    e0, e1 = int(loud[0]), int(loud[-1]) + 1
-    phase = np.unwrap(np.angle(hilbert(x[i0:i1])))
-    inst = np.diff(phase) * rate_hz / (2 * np.pi)
-    t = (i0 + np.arange(inst.size) + 0.5) / rate_hz
-    a, b = int(0.1 * inst.size), int(0.9 * inst.size)
-    ok = inst[a:b] > 0
+    thr = ESTIMATE_EDGE_FRACTION * max(float(np.max(x)), -float(np.min(x)))
+    e0, e1 = _first_last((x > thr) | (x < -thr))
+    # instantaneous frequency over the middle 80 % of the active part (decimated)
+    n_inst = i1 - i0 - 1
+    a, b = int(0.1 * n_inst), int(0.9 * n_inst)
+    step = max(1, -(-(b - a) // ESTIMATE_MAX_POINTS))
+    keep_t, keep_f = [], []
+    carry = None  # the previous block's last phase: the difference across blocks
+    for first, z in _analytic_blocks(x, i0, i1):
+        phase = np.unwrap(np.angle(z))
+        if carry is None:
+            full, j0 = phase, first - i0
+        else:
+            phase += 2 * np.pi * round((carry - phase[0]) / (2 * np.pi))
+            full, j0 = np.concatenate([[carry], phase]), first - i0 - 1
+        carry = float(phase[-1])
+        inst = np.diff(full) * rate_hz / (2 * np.pi)
+        j = j0 + np.arange(inst.size)  # index of each difference in the active part
+        pick = (j >= a) & (j < b) & ((j - a) % step == 0)
+        keep_t.append((i0 + j[pick] + 0.5) / rate_hz)
+        keep_f.append(inst[pick])
+    t_fit, f_fit = np.concatenate(keep_t), np.concatenate(keep_f)
+    ok = f_fit > 0
     if np.count_nonzero(ok) < 10:
         raise InputError(source, None, "cannot read a rising frequency: not a sine sweep")
-    tt, lf = t[a:b][ok], np.log(inst[a:b][ok])
+    tt, lf = t_fit[ok], np.log(f_fit[ok])
     slope, icpt = np.polyfit(tt, lf, 1)
     resid = float(np.sqrt(np.mean((lf - (icpt + slope * tt)) ** 2)))
     duration = (e1 - e0) / rate_hz

@@ -481,8 +481,11 @@ def _window_limits(p: SweepParams, rate_hz: float, n: int, n_fft: int,
     pre = max(8, min(pre, adv2 // 2))
     adv_max = int(p.harmonic_advance_s(HARMONIC_ORDERS_EXCLUDED) * rate_hz)
     start = onset - pre
-    # the response cannot be longer than the recording after the onset
-    l_max = min(n_fft - adv_max - 2 * pre, n - start, int(KEEP_S * rate_hz))
+    # the response cannot be longer than the recording after the onset, nor reach
+    # where the noise deconvolved to negative times (down to minus the sweep's
+    # duration) wraps around the grid
+    l_max = min(n_fft - adv_max - 2 * pre, n - start, int(KEEP_S * rate_hz),
+                n_fft - int(round(p.duration_s * rate_hz)) - start)
     return pre, start, l_max
 
 
@@ -512,8 +515,9 @@ def _deconvolve(inside: NDArray[np.floating], outside: NDArray[np.floating] | No
     precision buffers (:class:`characterize.longfft.LongSpectrum`) and is only
     as much longer than the recording as the harmonic images and the kept
     stretch need: the noise deconvolved to negative times (down to minus the
-    sweep's length) then wraps around to lags past ``KEEP_S`` after the onset,
-    outside everything read. Only the stretches that are read are kept.
+    sweep's duration) then wraps around to lags past ``KEEP_S`` after the onset,
+    outside everything read (and :func:`_window_limits` ends the window before
+    it in any case). Only the stretches that are read are kept.
     """
     p = sweep.params
     n = inside.size
@@ -543,9 +547,11 @@ def _deconvolve(inside: NDArray[np.floating], outside: NDArray[np.floating] | No
     pre = max(8, min(int(round(PRE_ONSET_S * rate_hz)), adv2 // 2))
     adv_max = int(p.harmonic_advance_s(HARMONIC_ORDERS_EXCLUDED) * rate_hz)
     # past the recording by what clears the harmonic images and keeps the
-    # negative-time noise (down to -T) that wraps around out of the kept stretch
-    clear = adv_max + 2 * pre + int(0.5 * rate_hz)
-    s_inv = long_inverse_spectrum(sweep, n + min(sweep.samples.size, clear))
+    # negative-time noise (down to minus the sweep's duration) that wraps around
+    # out of the kept stretch (at most KEEP_S); never shorter than the sweep file
+    clear = max(adv_max + 2 * pre, int(KEEP_S * rate_hz)) + int(0.5 * rate_hz)
+    size = sweep.samples.size
+    s_inv = long_inverse_spectrum(sweep, max(size, n + min(size, clear)))
     n_fft = s_inv.n_fft
     work = LongSpectrum(s_inv.n1, s_inv.n2)
 

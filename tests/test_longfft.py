@@ -20,6 +20,7 @@ import pytest
 from characterize import transfer as tr
 from characterize.fitting.fit import fit_transfer
 from characterize.longfft import LongSpectrum
+from characterize.excitation import SweepParams
 from characterize.simulate import Setup, simulate
 
 
@@ -79,7 +80,9 @@ def test_blocks_visit_every_bin_once() -> None:
 def _cases() -> list[tuple[Setup, bool]]:
     """A seeded family over the nominal ranges (f0 60 Hz-3 kHz, Q 4-150, SNR 20-60
     dB, three rates), two-microphone, plus one-microphone cases without room
-    reflections (the one-microphone window ends at the first one)."""
+    reflections (the one-microphone window ends at the first one), plus wide
+    sweeps with lead-ins (where the negative-time noise is most likely to wrap
+    into what is read)."""
     rng = np.random.default_rng(20261201)
     out = []
     for i in range(9):
@@ -92,11 +95,23 @@ def _cases() -> list[tuple[Setup, bool]]:
         if one_mic:
             setup = setup.with_(reflections=())
         out.append((setup, one_mic))
+    # wide sweeps (20 Hz to 0.45 fs) with f0 low in them, so that the sweep passed
+    # f0 long before its end; with a lead-in before the sweep and without
+    for i, (f0, q, lead_s) in enumerate(((120.0, 30.0, 0.02), (400.0, 60.0, 2.0),
+                                         (250.0, 15.0, 5.0))):
+        fs = 16000.0
+        sweep = SweepParams(start_hz=20.0, stop_hz=0.45 * fs, duration_s=6.0 + 2 * i,
+                            rate_hz=fs, level_dbfs=-6.0, tail_s=1.0 + i)
+        out.append((Setup(f0_hz=f0, q=q, rate_hz=fs, snr_db=40.0, sweep=sweep,
+                          latency_s=lead_s), False))
     return out
 
 
+N_CASES = 12
+
+
 @pytest.mark.parametrize("short_keep", [False, True])
-@pytest.mark.parametrize("case", range(9))
+@pytest.mark.parametrize("case", range(N_CASES))
 def test_long_path_gives_the_double_precision_result(case: int, short_keep: bool,
                                                      monkeypatch: pytest.MonkeyPatch) -> None:
     """The long-recording path (forced here on short recordings) gives the same
@@ -126,3 +141,21 @@ def test_long_path_gives_the_double_precision_result(case: int, short_keep: bool
     # 1e-5 absolute: the single-precision grid's own error floor in the harmonic
     # stretches (-100 dB re the fundamental, far below a loudspeaker's distortion)
     assert np.allclose(thd[ok], thd_ref[ok], rtol=0.01, atol=1e-5)
+
+
+def test_recording_stopped_before_the_sweep_files_tail(monkeypatch: pytest.MonkeyPatch) -> None:
+    """A sweep file whose silent tail is longer than what was recorded after the
+    sweep: the long path's grid still holds the whole sweep file, and gives the
+    double-precision path's fit."""
+    fs = 16000.0
+    sweep_p = SweepParams(start_hz=40.0, stop_hz=4000.0, duration_s=4.0, rate_hz=fs,
+                          level_dbfs=-6.0, tail_s=4.0)
+    setup = Setup(f0_hz=500.0, q=20.0, rate_hz=fs, snr_db=40.0, sweep=sweep_p)
+    data, sweep = simulate(setup, seed=3)
+    assert sweep is not None
+    cut = data[: int(4.4 * fs)].astype(np.float32)  # 0.4 s after the sweep, not 4 s
+    ref = fit_transfer(tr.sweep_transfer(cut[:, 0], cut[:, 1], fs, sweep))
+    monkeypatch.setattr(tr, "LONG_FFT_POINTS", 0)
+    got = fit_transfer(tr.sweep_transfer(cut[:, 0], cut[:, 1], fs, sweep))
+    assert abs(got.f0_hz - ref.f0_hz) < 0.01 * ref.f0_stderr_hz
+    assert abs(got.q - ref.q) < 0.01 * ref.q_stderr
