@@ -3,7 +3,9 @@
 A 10-minute, 96 kHz, two-channel recording (PCM 24-bit WAV) is made on disk
 for each path -- broadband noise for the cross-spectral (H1) path, a
 9.5-minute exponential sweep plus a 30 s tail for the deconvolution path --
-and ``characterize.pipeline.analyze`` runs on it in a fresh process. The
+and ``characterize.pipeline.analyze`` runs on it in a fresh process (the sweep
+once with its TOML sidecar and once without, when its parameters are read off
+the samples). The
 child's peak resident set size (``ru_maxrss`` from ``resource.getrusage``,
 standard library) is reported as a ratio to the raw float32 data size
 (frames x channels x 4 bytes), with and without the baseline of a process that
@@ -117,6 +119,15 @@ def main() -> None:
             raw_mib = frames * 2 * 4 / 2**20
             peak, _, secs = _peak([str(rec), str(sw) if sw else ""])
             rows.append((kind, frames, raw_mib, peak, peak0, secs, made))
+        # the same sweep without its sidecar: its parameters are read off the samples
+        assert sw is not None
+        side = sw.with_suffix(".toml")
+        side.rename(side.with_suffix(".toml.off"))
+        try:
+            peak, _, secs = _peak([str(rec), str(sw)])
+        finally:
+            side.with_suffix(".toml.off").rename(side)
+        rows.append(("sweep-no-sidecar", frames, raw_mib, peak, peak0, secs, 0.0))
     finally:
         if not opts.keep:
             shutil.rmtree(work, ignore_errors=True)
@@ -126,7 +137,8 @@ def main() -> None:
     print("| path | frames | raw float32 | peak RSS | ratio | ratio net of imports | time |")
     print("|---|---|---|---|---|---|---|")
     for kind, frames, raw, peak, p0, secs, _ in rows:
-        name = "noise (H1)" if kind == "noise" else "sweep (deconvolution)"
+        name = {"noise": "noise (H1)", "sweep": "sweep (deconvolution)",
+                "sweep-no-sidecar": "sweep, parameters read off the samples"}[kind]
         print(f"| {name} | {frames:,} | {raw:.0f} MiB | {peak:.0f} MiB | {peak / raw:.2f}x | "
               f"{(peak - p0) / raw:.2f}x | {secs:.1f} s |")
 
