@@ -211,14 +211,22 @@ def _analytic_blocks(x: NDArray[np.floating], lo: int, hi: int
     if hi - lo <= ESTIMATE_BLOCK + 2 * ESTIMATE_MARGIN:
         yield lo, hilbert(np.asarray(x[lo:hi], dtype=np.float64))
         return
+    from scipy.fft import next_fast_len
+
     for a in range(lo, hi, ESTIMATE_BLOCK):
         b = min(a + ESTIMATE_BLOCK, hi)
         a0, b0 = max(lo, a - ESTIMATE_MARGIN), min(hi, b + ESTIMATE_MARGIN)
-        yield a, hilbert(np.asarray(x[a0:b0], dtype=np.float64))[a - a0: b - a0]
+        # zero-padded by a margin, so that the transform's circular wrap does not
+        # carry one end of a block (cut mid-sweep) onto the other
+        n_fft = next_fast_len(b0 - a0 + ESTIMATE_MARGIN)
+        z = hilbert(np.asarray(x[a0:b0], dtype=np.float64), N=n_fft)
+        yield a, z[a - a0: b - a0]
 
 
-def _first_last(mask: NDArray[np.bool_]) -> tuple[int, int]:
-    """First index where ``mask`` holds and one past the last (mask not all False)."""
+def _first_last(mask: NDArray[np.bool_], source: str) -> tuple[int, int]:
+    """First index where ``mask`` holds and one past the last."""
+    if not np.any(mask):
+        raise InputError(source, None, "no sweep found")
     return int(np.argmax(mask)), int(mask.size - np.argmax(mask[::-1]))
 
 
@@ -239,6 +247,8 @@ def estimate_params(samples: NDArray[np.floating], rate_hz: float,
         x = x.astype(np.float64)
     if x.size == 0 or not np.any(x):
         raise InputError(source, None, "the sweep file is silent")
+    if not np.all(np.isfinite(x)):
+        raise InputError(source, None, "holds NaN or infinite samples")
     k = max(1, int(rate_hz * 0.002))
     # the law is fitted where the envelope is above 10 % of its peak (clear of the
     # fades); the sweep's ends are where the samples first and last leave silence
@@ -257,12 +267,12 @@ def estimate_params(samples: NDArray[np.floating], rate_hz: float,
             seg = np.convolve(env[lo:hi], box, mode="same")
             smooth[a:a + ESTIMATE_BLOCK] = seg[a - lo:a - lo + min(ESTIMATE_BLOCK, env.size - a)]
     peak = float(np.max(env))
-    i0, i1 = _first_last(smooth > 0.1 * peak)
+    i0, i1 = _first_last(smooth > 0.1 * peak, source)
     del env, smooth
     if i1 - i0 < 0.05 * rate_hz:
         raise InputError(source, None, "no sweep found (active part shorter than 50 ms)")
     thr = ESTIMATE_EDGE_FRACTION * max(float(np.max(x)), -float(np.min(x)))
-    e0, e1 = _first_last((x > thr) | (x < -thr))
+    e0, e1 = _first_last((x > thr) | (x < -thr), source)
     # instantaneous frequency over the middle 80 % of the active part (decimated)
     n_inst = i1 - i0 - 1
     a, b = int(0.1 * n_inst), int(0.9 * n_inst)

@@ -543,6 +543,7 @@ def signal_quality(tf: TransferFunction, fit: FitResult) -> dict[str, Any]:
     f = tf.freqs_hz
     idx = np.flatnonzero((f >= fit.band_hz[0]) & (f <= fit.band_hz[1]))
     q: dict[str, Any] = {"snr_db_in_band": None, "coherence_min_in_band": None,
+                         "coherence_min_off_peak": None,
                          "thd_inside_at_f0": None, "thd_outside_at_f0": None,
                          "window_ms": None if tf.window is None else 1000 * tf.window.length_s,
                          "resolution_hz": tf.resolution_hz}
@@ -555,6 +556,11 @@ def signal_quality(tf: TransferFunction, fit: FitResult) -> dict[str, Any]:
             q["snr_db_in_band"] = float(20 * np.log10(np.median(snr)))
         if tf.coherence is not None:
             q["coherence_min_in_band"] = float(np.min(tf.coherence[idx]))
+            # away from the half-power band, where leakage of the ringing does not
+            # lower the coherence (checks.UNDERSTATED_ERRORS_COHERENCE)
+            off = idx[np.abs(f[idx] - fit.f0_hz) >= fit.f0_hz / (2 * fit.q)]
+            if off.size:
+                q["coherence_min_off_peak"] = float(np.min(tf.coherence[off]))
     for key, arr in (("thd_inside_at_f0", tf.thd_inside), ("thd_outside_at_f0", tf.thd_outside)):
         if arr is not None:
             v = float(np.interp(fit.f0_hz, f, arr))

@@ -97,7 +97,11 @@ def read_transfer_csv(path: str | Path) -> TransferFunction:
     i_mag, i_ph = _find(header, "magnitude_db"), _find(header, "phase")
     i_sig = _find(header, "sigma")
     lower = [h.lower() for h in header]
-    extra = {name: lower.index(name) for name in EXTRA_COLUMNS if name in lower}
+    # the coherence column is read from our own export only (another program's
+    # may be in percent or hold blanks; it was never read before)
+    own = any(ln.lstrip("#").strip() == FORMAT for ln in all_lines if ln.lstrip().startswith("#"))
+    extra = {name: lower.index(name) for name in EXTRA_COLUMNS
+             if name in lower and (own or name != "coherence")}
     if ("noise_a" in extra) != ("noise_b" in extra):
         raise InputError(str(p), "header", "columns noise_a and noise_b come together")
     if i_f is None:
@@ -230,7 +234,8 @@ def write_transfer_csv(path: str | Path, tf: TransferFunction) -> Path:
     ref = np.asarray(tf.reference_db, dtype=np.float64)
     if ref.shape == tf.freqs_hz.shape and np.all(np.isfinite(ref[keep])):
         extra["reference_db"] = ref
-    if tf.coherence is not None and np.all(np.isfinite(tf.coherence[keep])):
+    if (tf.kernel is not None and tf.method.startswith("cross-spectral")
+            and tf.coherence is not None and np.all(np.isfinite(tf.coherence[keep]))):
         extra["coherence"] = np.asarray(tf.coherence, dtype=np.float64)
     w.writerow(["frequency_hz", "real", "imag", "magnitude_db", "phase_deg"]
                + (["sigma"] if has_sigma else []) + list(extra))

@@ -303,6 +303,29 @@ class TestEstimateParams:
         assert blocks.tail_s == pytest.approx(whole.tail_s, abs=2 / p.rate_hz)
         assert blocks.level_dbfs == whole.level_dbfs
 
+    @pytest.mark.parametrize("lead_s, noise", [(0.5, 0.0), (2.0, 0.0), (0.5, 1e-4)])
+    def test_block_by_block_with_leading_silence(self, lead_s: float, noise: float,
+                                                 monkeypatch: pytest.MonkeyPatch) -> None:
+        """A sweep file with silence (or faint noise) before the sweep: no block's
+        transform may wrap the sweep onto that silence (the first block is cut
+        mid-sweep), so the blocks find the same active part and law."""
+        p = SweepParams(start_hz=50.0, stop_hz=8000.0, duration_s=5.0, rate_hz=16000.0,
+                        level_dbfs=-6.0, tail_s=0.5)
+        rng = np.random.default_rng(7)
+        x = np.concatenate([np.zeros(int(lead_s * p.rate_hz)), make_sweep(p).samples])
+        x = (x + noise * rng.standard_normal(x.size)).astype(np.float32)
+        whole = estimate_params(x, p.rate_hz)
+        monkeypatch.setattr(ex, "ESTIMATE_BLOCK", 1 << 14)
+        monkeypatch.setattr(ex, "ESTIMATE_MARGIN", 1 << 11)
+        monkeypatch.setattr(ex, "ESTIMATE_MAX_POINTS", 1 << 12)
+        blocks = estimate_params(x, p.rate_hz)
+        assert blocks.start_hz == pytest.approx(whole.start_hz, rel=1e-3)
+        assert blocks.stop_hz == pytest.approx(whole.stop_hz, rel=1e-3)
+        assert blocks.duration_s == pytest.approx(whole.duration_s, abs=2 / p.rate_hz)
+        # and both read the generated sweep (brief: 3 % band, 2 % duration)
+        assert blocks.start_hz == pytest.approx(p.start_hz, rel=0.03)
+        assert blocks.duration_s == pytest.approx(p.duration_s, rel=0.02)
+
     def test_silence_is_rejected(self) -> None:
         with pytest.raises(InputError, match="silent"):
             estimate_params(np.zeros(48000), 48000.0)

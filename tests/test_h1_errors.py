@@ -2,11 +2,11 @@
 marks where they are too small (issue 6: "where a regime fails, make the tool
 flag that regime rather than pretend").
 
-A seeded family of simulated noise recordings (characterize.selftest's case
-draw: f0 60 Hz to 3 kHz, Q 4 to 150, SNR 15 to 45 dB, 16 and 48 kHz) through
-cross_spectral_transfer, fit_transfer and checks.check_signal_quality. The
-seed differs from the runs that set the flag's threshold (docs/quality.md),
-so this is a held-out check.
+Seeded families of simulated noise recordings (characterize.selftest's case
+draw: f0 60 Hz to 3 kHz, Q 4 to 150, SNR 15 to 45 dB, and a clean one at 45 to
+60 dB; 16 and 48 kHz) through cross_spectral_transfer, fit_transfer and
+checks.check_signal_quality. The seeds differ from the runs that set the
+flag's threshold (docs/quality.md), so these are held-out checks.
 
 Check value and source: a standard error is the rms of (estimate - truth) /
 stderr, which is 1 for honest errors (definition; S.M. Kay, *Fundamentals of
@@ -47,6 +47,29 @@ def family() -> list[tuple[bool, float, float]]:
                     (fit.f0_hz - setup.f0_hz) / fit.f0_stderr_hz,
                     (fit.q - setup.q) / fit.q_stderr))
     return out
+
+
+@pytest.fixture(scope="module")
+def clean_family() -> list[bool]:
+    """Whether errors-understated was raised, on clean high-SNR noise recordings."""
+    plan = st.Plan("h1-clean", trials=60, seed=4343, methods=("noise",),
+                   snr_range_db=(45.0, 60.0), rates_hz=(16000.0, 48000.0))
+    out = []
+    for case in st.draw_cases(plan):
+        setup = case.setup()
+        data, _ = simulate(setup, seed=case.seed)
+        x = data.astype(np.float32)
+        tf = cross_spectral_transfer(x[:, 0], x[:, 1], setup.rate_hz)
+        fit = fit_transfer(tf)
+        codes = {f.code for f in checks.check_signal_quality(signal_quality(tf, fit), True)}
+        out.append("errors-understated" in codes)
+    return out
+
+
+def test_flag_is_quiet_on_clean_recordings(clean_family) -> None:
+    # at 45 to 60 dB the errors are not too small (docs/quality.md); the leakage of
+    # the ringing lowers the coherence near the peak, which the flag must ignore
+    assert sum(clean_family) <= 2, sum(clean_family)  # of 60; 1 % in docs/quality.md
 
 
 def _rms(z: list[float]) -> float:

@@ -447,6 +447,11 @@ def test_noise_columns_come_in_pairs_and_are_checked(tmp_path: Path) -> None:
     np.testing.assert_allclose(tf.noise_b, 2e-4)
     np.testing.assert_allclose(tf.reference_db, -20.0)
     with pytest.raises(InputError, match="coherence must lie between 0 and 1") as err:
-        read_transfer_csv(_kernel_file(tmp_path, [], ",coherence",
+        read_transfer_csv(_kernel_file(tmp_path, ["# characterize.transfer-csv/1"],
+                                       ",coherence",
                                        [",0.5"] * (len(GOOD_ROWS) - 1) + [",1.5"]))
     assert err.value.field == f"row {len(GOOD_ROWS) + 1}"
+    # another program's coherence column (here in percent) is not ours to read
+    tf = read_transfer_csv(_kernel_file(tmp_path, [], ",coherence",
+                                        [",95"] * len(GOOD_ROWS)))
+    assert tf.coherence is None

@@ -57,6 +57,9 @@ def fit_circle_points(z: NDArray[np.complex128]) -> tuple[complex, float]:
 
 #: Noisy replicas of the data from which the circle fit's standard errors come.
 BOOTSTRAP_REPLICAS = 48
+#: Points a side of the resonance that enter the pair estimates (imported
+#: transfer functions can be dense; measured ones have a few dozen).
+MAX_SIDE_POINTS = 400
 
 
 def _estimate(f: NDArray[np.float64], b: NDArray[np.complex128]
@@ -78,6 +81,11 @@ def _estimate(f: NDArray[np.float64], b: NDArray[np.complex128]
     theta = np.abs(ang - target)
     a = (f > f_res) & (theta >= 0.2)
     bl = (f < f_res) & (theta >= 0.2)
+    for side in (a, bl):  # at most MAX_SIDE_POINTS a side (evenly): a bounded pair matrix
+        idx = np.flatnonzero(side)
+        if idx.size > MAX_SIDE_POINTS:
+            side[:] = False
+            side[idx[np.linspace(0, idx.size - 1, MAX_SIDE_POINTS).round().astype(int)]] = True
     wa, ta = 2 * math.pi * f[a][:, None], theta[a][:, None]
     wb, tb = 2 * math.pi * f[bl][None, :], theta[bl][None, :]
     if wa.size * wb.size < 3:
