@@ -271,6 +271,15 @@ ESTIMATE_CASES = [
 ]
 
 
+def _in_small_blocks(x: np.ndarray, rate_hz: float, monkeypatch: pytest.MonkeyPatch
+                     ) -> SweepParams:
+    """estimate_params with blocks of 2^14 samples and at most 2^12 fitted points."""
+    monkeypatch.setattr(ex, "ESTIMATE_BLOCK", 1 << 14)
+    monkeypatch.setattr(ex, "ESTIMATE_MARGIN", 1 << 11)
+    monkeypatch.setattr(ex, "ESTIMATE_MAX_POINTS", 1 << 12)
+    return estimate_params(x, rate_hz)
+
+
 class TestEstimateParams:
     @pytest.mark.parametrize("kw", ESTIMATE_CASES, ids=_ids(ESTIMATE_CASES))
     def test_recovers_band_and_duration(self, kw: dict[str, float]) -> None:
@@ -293,10 +302,7 @@ class TestEstimateParams:
         p = SweepParams(**kw)
         x = make_sweep(p).samples.astype(np.float32)  # as load_sweep holds a file's samples
         whole = estimate_params(x, p.rate_hz)
-        monkeypatch.setattr(ex, "ESTIMATE_BLOCK", 1 << 14)
-        monkeypatch.setattr(ex, "ESTIMATE_MARGIN", 1 << 11)
-        monkeypatch.setattr(ex, "ESTIMATE_MAX_POINTS", 1 << 12)
-        blocks = estimate_params(x, p.rate_hz)
+        blocks = _in_small_blocks(x, p.rate_hz, monkeypatch)
         assert blocks.start_hz == pytest.approx(whole.start_hz, rel=2e-3)
         assert blocks.stop_hz == pytest.approx(whole.stop_hz, rel=2e-3)
         assert blocks.duration_s == pytest.approx(whole.duration_s, abs=2 / p.rate_hz)
@@ -315,10 +321,7 @@ class TestEstimateParams:
         x = np.concatenate([np.zeros(int(lead_s * p.rate_hz)), make_sweep(p).samples])
         x = (x + noise * rng.standard_normal(x.size)).astype(np.float32)
         whole = estimate_params(x, p.rate_hz)
-        monkeypatch.setattr(ex, "ESTIMATE_BLOCK", 1 << 14)
-        monkeypatch.setattr(ex, "ESTIMATE_MARGIN", 1 << 11)
-        monkeypatch.setattr(ex, "ESTIMATE_MAX_POINTS", 1 << 12)
-        blocks = estimate_params(x, p.rate_hz)
+        blocks = _in_small_blocks(x, p.rate_hz, monkeypatch)
         assert blocks.start_hz == pytest.approx(whole.start_hz, rel=1e-3)
         assert blocks.stop_hz == pytest.approx(whole.stop_hz, rel=1e-3)
         assert blocks.duration_s == pytest.approx(whole.duration_s, abs=2 / p.rate_hz)
