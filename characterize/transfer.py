@@ -471,15 +471,20 @@ def _abs_at(values: Callable[[NDArray[np.int64]], NDArray[np.complex128]], n_fft
     return np.abs(values(k0)) * (1 - frac) + np.abs(values(k0 + 1)) * frac
 
 
+def _pre_and_images(p: SweepParams, rate_hz: float) -> tuple[int, int]:
+    """(samples kept before the onset, advance of the order-HARMONIC_ORDERS_EXCLUDED
+    harmonic image) for a sweep at ``rate_hz``."""
+    adv2 = int(p.harmonic_advance_s(2) * rate_hz)
+    pre = max(8, min(int(round(PRE_ONSET_S * rate_hz)), adv2 // 2))
+    return pre, int(p.harmonic_advance_s(HARMONIC_ORDERS_EXCLUDED) * rate_hz)
+
+
 def _window_limits(p: SweepParams, rate_hz: float, n: int, n_fft: int,
                    onset: int) -> tuple[int, int, int]:
     """(pre, first sample, longest window) of the impulse-response window: from
     ``pre`` samples before the onset, clear of the order-HARMONIC_ORDERS_EXCLUDED
     image, within the recording and ``KEEP_S``."""
-    adv2 = int(p.harmonic_advance_s(2) * rate_hz)
-    pre = int(round(PRE_ONSET_S * rate_hz))
-    pre = max(8, min(pre, adv2 // 2))
-    adv_max = int(p.harmonic_advance_s(HARMONIC_ORDERS_EXCLUDED) * rate_hz)
+    pre, adv_max = _pre_and_images(p, rate_hz)
     start = onset - pre
     # the response cannot be longer than the recording after the onset, nor reach
     # where the noise deconvolved to negative times (down to minus the sweep's
@@ -544,8 +549,7 @@ def _deconvolve(inside: NDArray[np.floating], outside: NDArray[np.floating] | No
     from .excitation import band_response, long_inverse_spectrum
     from .longfft import LongSpectrum
 
-    pre = max(8, min(int(round(PRE_ONSET_S * rate_hz)), adv2 // 2))
-    adv_max = int(p.harmonic_advance_s(HARMONIC_ORDERS_EXCLUDED) * rate_hz)
+    pre, adv_max = _pre_and_images(p, rate_hz)
     # past the recording by what clears the harmonic images and keeps the
     # negative-time noise (down to minus the sweep's duration) that wraps around
     # out of the kept stretch (at most KEEP_S); never shorter than the sweep file
