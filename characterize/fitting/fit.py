@@ -234,7 +234,9 @@ def fit_transfer(tf: TransferFunction, band_hz: tuple[float, float] | None = Non
     FitError
         No peak, too few points, or no convergence.
     """
-    import lmfit
+    from ._lmfit import import_lmfit
+
+    lmfit = import_lmfit()
 
     excited = tf.excited_band_hz
     f0, q = estimate_peak(tf.freqs_hz, peak_search_values(tf),

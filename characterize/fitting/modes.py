@@ -179,7 +179,9 @@ def fit_modes(tf: TransferFunction, n_modes: int, *, background_order: int = -1,
     Raises :class:`InputError` when the data show fewer peaks than asked for,
     :class:`FitError` when the fit fails.
     """
-    import lmfit
+    from ._lmfit import import_lmfit
+
+    lmfit = import_lmfit()
 
     if starts is not None:
         peaks = starts

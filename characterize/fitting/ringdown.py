@@ -132,7 +132,9 @@ def find_decays(x: NDArray[np.float64], rate_hz: float) -> list[tuple[int, int, 
 def fit_decay(x: NDArray[np.float64], rate_hz: float, noise_rms: float,
               start: int = 0) -> Decay:
     """Fit one decay stretch (already cut) with lmfit, starting from the matrix pencil."""
-    import lmfit
+    from ._lmfit import import_lmfit
+
+    lmfit = import_lmfit()
 
     step = max(1, x.size // MAX_FIT_SAMPLES)
     xs = x[::step]
