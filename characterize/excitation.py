@@ -363,15 +363,13 @@ def band_response(f_min_hz: float, f_max_hz: float, lo_hz: float, hi_hz: float,
     (zeros-poles-gain form; the polynomial form loses precision at order 8),
     then interpolated (the response is smooth in log frequency, and the FFT grids
     here have up to 10^8 points)."""
-    from scipy.signal import butter, freqs_zpk
+    from .dsp import butter_analog_zpk, freqs_zpk  # numpy: no scipy.signal on the fit path
 
     f_min = float(f_min_hz)
     grid = np.geomspace(f_min, max(float(f_max_hz), f_min * 1.0001), 20000)
     w = 2 * np.pi * grid
-    zh, ph, kh = butter(order, 2 * np.pi * lo_hz, btype="highpass", analog=True, output="zpk")
-    zl, pl, kl = butter(order, 2 * np.pi * hi_hz, btype="lowpass", analog=True, output="zpk")
-    _, hh = freqs_zpk(zh, ph, kh, worN=w)
-    _, hl = freqs_zpk(zl, pl, kl, worN=w)
+    hh = freqs_zpk(*butter_analog_zpk(order, 2 * np.pi * lo_hz, "highpass"), w)
+    hl = freqs_zpk(*butter_analog_zpk(order, 2 * np.pi * hi_hz, "lowpass"), w)
     g = hh * hl
     lg = np.log(grid)
 

@@ -45,19 +45,21 @@ def test_fit_help_exits_0():
         assert option in proc.stdout, option
 
 
-def test_fit_json_does_not_import_matplotlib():
+def test_fit_json_does_not_import_matplotlib_or_scipy_signal():
     """A fit that draws nothing never loads matplotlib (lmfit's optional import of it
-    is kept from running, characterize/fitting/_lmfit.py), and lmfit still works."""
+    is kept from running, characterize/fitting/_lmfit.py) nor scipy.signal (the band
+    limit and the peak finder are numpy, characterize/dsp.py), and lmfit still works."""
     root = Path(__file__).resolve().parents[1] / "example_audio"
     code = ("import sys; from characterize.pipeline import analyze; "
             f"r = analyze({str(root / 'listening-jar-04.flac')!r}, "
             f"sweep_path={str(root / 'sweep-48k.wav')!r}); "
-            "print(round(r.fit.f0_hz), 'matplotlib' in sys.modules, 'lmfit' in sys.modules)")
+            "print(round(r.fit.f0_hz), 'matplotlib' in sys.modules, 'lmfit' in sys.modules, "
+            "'scipy.signal' in sys.modules)")
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                           timeout=120)
     assert proc.returncode == 0, proc.stderr
     # 243 Hz: the bundled jar's truth (example_audio/truth.json, simulated demo data)
-    assert proc.stdout.split() == ["243", "False", "True"], proc.stdout
+    assert proc.stdout.split() == ["243", "False", "True", "False"], proc.stdout
 
 
 def test_matplotlib_still_importable_after_lmfit():

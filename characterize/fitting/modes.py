@@ -68,7 +68,7 @@ def find_resonances(tf: TransferFunction, band_hz: tuple[float, float] | None = 
                     ) -> list[tuple[float, float]]:
     """Resonance peaks (f0 estimate, Q estimate from the half-power width) in
     ``band_hz`` (default the excited band), most prominent first."""
-    from scipy.signal import find_peaks, peak_widths
+    from ..dsp import find_peaks, peak_widths  # scipy.signal's, in numpy (fast start)
 
     lo, hi = band_hz or tf.excited_band_hz
     h = peak_search_values(tf)
@@ -81,16 +81,16 @@ def find_resonances(tf: TransferFunction, band_hz: tuple[float, float] | None = 
     if k > 1:
         mag = np.convolve(mag, np.ones(k) / k, mode="same")
     db = 20 * np.log10(np.maximum(mag, 1e-300))
-    peaks, props = find_peaks(db, prominence=PEAK_PROMINENCE_DB)
+    peaks, prominences = find_peaks(db, PEAK_PROMINENCE_DB)
     if peaks.size == 0:
         return []
-    widths = peak_widths(mag, peaks, rel_height=1 - 1 / math.sqrt(2))[0]
+    widths = peak_widths(mag, peaks, 1 - 1 / math.sqrt(2))
     df = np.gradient(f)[peaks]
     out = []
     for i, pk in enumerate(peaks):
         width_hz = max(widths[i] * df[i], df[i])
         out.append((float(f[pk]), float(max(f[pk] / width_hz, 0.5)),
-                    float(props["prominences"][i])))
+                    float(prominences[i])))
     out.sort(key=lambda t: -t[2])
     return [(fr, q) for fr, q, _ in out]
 
