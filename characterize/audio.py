@@ -156,10 +156,15 @@ def check_channel(rec: Recording, number: int, option: str) -> int:
 def check_not_silent(rec: Recording, number: int, role: str) -> None:
     """Raise :class:`InputError` when a channel is silent."""
     x = rec.data[:, number - 1]
-    if float(np.max(np.abs(x))) < SILENCE_PEAK:
+    hi, lo = float(np.max(x)), float(np.min(x))
+    if max(hi, -lo) < SILENCE_PEAK:
         raise InputError(rec.path, f"channel {number}",
                          f"the {role} channel is silent (peak below {SILENCE_PEAK:g} of "
                          "full scale)")
+    if hi - lo < SILENCE_PEAK:
+        raise InputError(rec.path, f"channel {number}",
+                         f"the {role} channel holds only a constant level ({hi:.3g} of full "
+                         "scale, no sound): check the microphone and its input")
 
 
 def clip_report(rec: Recording, number: int) -> ClipReport:

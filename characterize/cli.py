@@ -15,7 +15,7 @@ import click
 from . import __version__
 from .commands._errors import handles_errors
 from .commands._params import Quantity, air_options
-from .errors import InputError
+from .errors import FitError, InputError
 
 
 class OneLineErrors(click.Group):
@@ -167,14 +167,20 @@ def fit(recording: Path | None, object_path: Path | None, sweep_path: Path | Non
     from .report.document import to_json, write_document
     from .report.text import summary
 
-    result = analyze(recording, object_path=object_path, sweep_path=sweep_path,
-                     excitation_path=excitation_path, transfer_path=transfer_path,
-                     method=method, modes=modes, inside=inside,
-                     outside=outside, band_hz=band, temperature_c=temperature_c,
-                     relative_humidity=relative_humidity, pressure_pa=pressure_pa,
-                     tolerance=tolerance, outside_distance_m=outside_distance_m,
-                     calibration_path=calibration_path,
-                     window_s=None if window_ms is None else window_ms / 1000.0)
+    try:
+        result = analyze(recording, object_path=object_path, sweep_path=sweep_path,
+                         excitation_path=excitation_path, transfer_path=transfer_path,
+                         method=method, modes=modes, inside=inside,
+                         outside=outside, band_hz=band, temperature_c=temperature_c,
+                         relative_humidity=relative_humidity, pressure_pa=pressure_pa,
+                         tolerance=tolerance, outside_distance_m=outside_distance_m,
+                         calibration_path=calibration_path,
+                         window_s=None if window_ms is None else window_ms / 1000.0)
+    except FitError as exc:
+        # exit status 1 either way; with --json the no-fit document goes to stdout
+        if as_json and exc.document is not None:
+            click.echo(to_json(exc.document), nl=False)
+        raise
     doc = result.to_dict()
     written = []
     if out_dir is not None:

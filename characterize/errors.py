@@ -29,4 +29,11 @@ class InputError(CharacterizeError):
 
 
 class FitError(CharacterizeError):
-    """Readable data from which no fit could be made (exit status 1)."""
+    """Readable data from which no fit could be made (exit status 1).
+
+    :func:`characterize.pipeline.analyze` attaches ``document``: the result
+    document of a run that made no fit (``status`` "no fit", the ``reason``, the
+    input and the flags raised before it stopped), which ``fit --json`` prints.
+    """
+
+    document: dict | None = None

@@ -64,6 +64,10 @@ from .physics.helmholtz import (
 from .transfer import TransferFunction
 
 METHODS = ("auto", "sweep", "h1", "h2", "one-channel", "ringdown", "csv")
+#: ``input.method`` of a no-fit document: the way of recording that was tried.
+NO_FIT_METHOD_NAMES = {"sweep": "sweep-deconvolution", "h1": "cross-spectral-h1",
+                       "h2": "cross-spectral-h2", "one-channel": "one-channel",
+                       "ringdown": "ringdown", "csv": "csv"}
 #: Order of the complex polynomial background on the one-microphone paths.
 BACKGROUND_ORDER = 3
 #: An excitation file must match the recording this well (normalised cross-
@@ -141,6 +145,8 @@ class Result:
         return {
             "schema": SCHEMA,
             "tool_version": __version__,
+            "status": "fitted",
+            "reason": None,
             "input": self.input.to_dict(),
             "air": air,
             "fit": fit,
@@ -217,6 +223,13 @@ def _align_excitation(x: np.ndarray, y: np.ndarray, source: str) -> np.ndarray:
     return out
 
 
+def no_fit_document(reason: str, info: InputInfo | None, flags: list[Flag]) -> dict[str, Any]:
+    """The result document of a run that made no fit (docs/result-schema.md)."""
+    return {"schema": SCHEMA, "tool_version": __version__, "status": "no fit",
+            "reason": reason, "input": None if info is None else info.to_dict(),
+            "fit": None, "flags": [f.to_dict() for f in flags]}
+
+
 def analyze(recording: str | Path | None, *, object_path: str | Path | None = None,
             sweep_path: str | Path | None = None, excitation_path: str | Path | None = None,
             transfer_path: str | Path | None = None, method: str = "auto", inside: int = 1,
@@ -271,6 +284,27 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
     FitError
         Readable data but no fit (exit status 1).
     """
+    options = dict(locals())
+    context: dict[str, Any] = {"flags": [], "input": None}
+    try:
+        return _analyze(context, **options)
+    except FitError as exc:
+        exc.document = no_fit_document(str(exc), context["input"], context["flags"])
+        raise
+
+
+def _analyze(context: dict[str, Any], recording: str | Path | None, *,
+             object_path: str | Path | None = None,
+            sweep_path: str | Path | None = None, excitation_path: str | Path | None = None,
+            transfer_path: str | Path | None = None, method: str = "auto", inside: int = 1,
+            outside: int = 2, band_hz: tuple[float, float] | None = None,
+            modes: int | None = None, temperature_c: float | None = None,
+            relative_humidity: float | None = None, pressure_pa: float | None = None,
+            tolerance: float | None = None, window_s: float | None = None,
+            outside_distance_m: float | None = None,
+            calibration_path: str | Path | None = None) -> Result:
+    """The body of :func:`analyze`; ``context`` collects the flags and the input
+    description for the no-fit document."""
     if tolerance is not None and not (0 < tolerance < 1):
         raise InputError("--tolerance", None,
                          f"must be a fraction between 0 and 1, got {tolerance}")
@@ -312,8 +346,17 @@ def analyze(recording: str | Path | None, *, object_path: str | Path | None = No
                          f"data (0 to {rec.sample_rate_hz / 2:g} Hz at this sample rate)")
 
     two_mic = chosen in ("sweep", "h1", "h2")
-    flags: list[Flag] = []
+    flags: list[Flag] = context["flags"]
     sweep_from = None
+    context["input"] = InputInfo(
+        recording=str(recording if recording is not None else transfer_path),
+        sample_rate_hz=None if rec is None else rec.sample_rate_hz,
+        inside_channel=None if rec is None else inside,
+        outside_channel=outside if two_mic else None, method=NO_FIT_METHOD_NAMES[chosen],
+        polarity_inverted=False, sweep=None if sweep_path is None else str(sweep_path),
+        excitation=None if excitation_path is None else str(excitation_path),
+        duration_s=None if rec is None else rec.duration_s,
+        subtype=None if rec is None else rec.subtype)
     if rec is not None:
         check_channel(rec, inside, "--inside")
         check_not_silent(rec, inside, "inside")
@@ -573,7 +616,14 @@ def _ringdown(rec: Recording, channel: int, obj: ResonatorObject | None, air: Ai
     from .fitting.ringdown import combine, fit_ringdown
 
     x = rec.channel(channel)
-    decays = fit_ringdown(x, rec.sample_rate_hz, rec.path)
+    try:
+        decays = fit_ringdown(x, rec.sample_rate_hz, rec.path)
+    except FitError as exc:
+        if rec.n_channels == 1:  # perhaps a two-microphone take saved as mono
+            raise FitError(f"{exc} (a one-channel recording without --sweep or "
+                           "--excitation is read as taps; the two-microphone methods "
+                           "need two channels)") from None
+        raise
     f0, sf, q, sq = combine(decays)
     redchi = float(np.mean([d.reduced_chi2 for d in decays]))
     fit = FitResult(f0_hz=f0, f0_stderr_hz=sf, q=q, q_stderr=sq,

@@ -158,9 +158,11 @@ def test_text_file_named_wav(tmp_path, files):
 
 def test_mono_file(tmp_path, files):
     out = tmp_path / "out"
+    # read as taps (ringdown): noise holds no free decay, a refusal (exit 1) that
+    # names the two-channel methods
     res = run("fit", files["mono"], "--out", out)
-    assert_one_line_error(res, 2, re.escape(files["mono"].name), r"mono|one channel|1 channel",
-                          r"2|two")
+    assert_one_line_error(res, 1, re.escape(files["mono"].name), r"no free decay",
+                          r"one-channel recording", r"two channels")
     assert_nothing_written(out)
 
 
@@ -289,6 +291,49 @@ def test_no_resonance_is_no_fit(tmp_path, files):
     res = run("fit", files["flat"], "--out", out)
     assert_one_line_error(res, 1, r"no fit", re.escape(files["flat"].name) + r"|resonance|peak")
     assert_nothing_written(out)
+
+
+def test_no_fit_with_json_prints_a_no_fit_document(files):
+    """Issue 11, item 7: exit 1 with --json still gives a machine-readable answer
+    on stdout (docs/result-schema.md), and the one-line reason on stderr."""
+    res = run("fit", files["flat"], "--json")
+    line = assert_one_line_error(res, 1, r"no fit")
+    doc = json.loads(res.stdout)
+    assert doc["schema"] == "characterize.result/1"
+    assert doc["status"] == "no fit"
+    assert doc["reason"] and doc["reason"] in line
+    assert doc["fit"] is None
+    assert doc["input"]["recording"] == str(files["flat"])
+    assert doc["input"]["method"] == "cross-spectral-h1"
+    assert isinstance(doc["flags"], list)
+    # a fitted document says so
+    res = run("fit", files["good"], "--json")
+    assert res.exit_code == 0, res.stderr
+    doc = json.loads(res.stdout)
+    assert doc["status"] == "fitted" and doc["reason"] is None
+
+
+def test_ringdown_without_a_decay_is_no_fit_document(tmp_path):
+    """Noise alone on the one-microphone ringdown path: a refusal (exit 1), with
+    the no-fit document under --json."""
+    rec = tmp_path / "hiss.wav"
+    sf.write(rec, 0.05 * np.random.default_rng(5).standard_normal(48000), 48000)
+    res = run("fit", rec, "--json")
+    assert_one_line_error(res, 1, r"no fit", r"no free decay")
+    doc = json.loads(res.stdout)
+    assert doc["status"] == "no fit" and doc["input"]["method"] == "ringdown"
+
+
+@pytest.mark.parametrize("which", [1, 2])
+def test_constant_channel_is_refused(tmp_path, files, which):
+    """A channel holding only a DC level (a dead microphone on a biased input)."""
+    data, rate = sf.read(files["good"])
+    data[:, which - 1] = 0.25
+    rec = tmp_path / "dc.wav"
+    sf.write(rec, data, rate, subtype="FLOAT")
+    res = run("fit", rec, "--json")
+    assert_one_line_error(res, 2, re.escape(rec.name), rf"channel {which}", r"constant")
+    assert res.stdout == ""
 
 
 def test_strict_exits_1_on_warning_and_0_when_clean(tmp_path):

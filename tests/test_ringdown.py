@@ -32,7 +32,7 @@ from click.testing import CliRunner
 from scipy.signal import hilbert
 
 from characterize.cli import main
-from characterize.errors import InputError
+from characterize.errors import FitError
 from characterize.fitting.ringdown import (
     MIN_DECAY_DB,
     combine,
@@ -340,10 +340,12 @@ NO_DECAY = {
 
 
 @pytest.mark.parametrize("kind", list(NO_DECAY))
-def test_no_decay_is_an_input_error(tmp_path: Path, kind: str) -> None:
+def test_no_decay_is_no_fit(tmp_path: Path, kind: str) -> None:
+    """Noise alone or a steady tone holds no resonance to fit: a refusal (FitError,
+    exit status 1; issue 11, item 7), never a result."""
     fs = 16000.0
     x = NO_DECAY[kind](np.random.default_rng(5), int(fs), fs)
-    with pytest.raises(InputError) as err:
+    with pytest.raises(FitError) as err:
         fit_ringdown(x, fs, "taps.wav")
     msg = str(err.value)
     assert "\n" not in msg
@@ -351,7 +353,7 @@ def test_no_decay_is_an_input_error(tmp_path: Path, kind: str) -> None:
     assert f"{MIN_DECAY_DB:g} dB" in msg  # says what level was expected
     assert find_decays(x, fs) == []
     rec = _write(tmp_path / f"{kind}.wav", x, fs)
-    with pytest.raises(InputError, match=re.escape(f"{MIN_DECAY_DB:g} dB")):
+    with pytest.raises(FitError, match=re.escape(f"{MIN_DECAY_DB:g} dB")):
         analyze(rec, method="ringdown")
 
 
@@ -361,7 +363,7 @@ def test_no_decay_on_the_command_line(tmp_path: Path) -> None:
         int(fs)), fs)
     out = tmp_path / "out"
     res = CliRunner().invoke(main, ["fit", str(rec), "--method", "ringdown", "--out", str(out)])
-    assert res.exit_code == 2, (res.stdout, res.stderr)
+    assert res.exit_code == 1, (res.stdout, res.stderr)
     assert "Traceback" not in res.output
     lines = [ln for ln in res.stderr.splitlines() if ln.strip()]
     assert len(lines) == 1, lines

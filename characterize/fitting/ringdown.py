@@ -21,7 +21,7 @@ from dataclasses import asdict, dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from ..errors import FitError, InputError
+from ..errors import FitError
 
 #: A decay must start this many dB above the noise floor to be fitted.
 MIN_DECAY_DB = 20.0
@@ -193,12 +193,11 @@ def fit_decay(x: NDArray[np.float64], rate_hz: float, noise_rms: float,
 
 def fit_ringdown(x: NDArray[np.float64], rate_hz: float, source: str = "recording"
                  ) -> list[Decay]:
-    """Find and fit every free decay in ``x``; :class:`InputError` when none is found."""
+    """Find and fit every free decay in ``x``; :class:`FitError` (no fit) when none is found."""
     stretches = find_decays(x, rate_hz)
     if not stretches:
-        raise InputError(source, None,
-                         f"no free decay found: a tap or pop should rise at least "
-                         f"{MIN_DECAY_DB:g} dB above the noise floor and ring down")
+        raise FitError(f"{source}: no free decay found: a tap or pop should rise at least "
+                       f"{MIN_DECAY_DB:g} dB above the noise floor and ring down")
     decays = []
     for start, stop, noise in stretches:
         try:
