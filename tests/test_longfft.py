@@ -17,11 +17,11 @@ import math
 import numpy as np
 import pytest
 
-from characterize import transfer as tr
+from characterize.excitation import SweepParams
 from characterize.fitting.fit import fit_transfer
 from characterize.longfft import LongSpectrum
-from characterize.excitation import SweepParams
 from characterize.simulate import Setup, simulate
+from characterize.transfer import sweep as tr
 
 
 def _natural(spec: LongSpectrum) -> np.ndarray:

@@ -1,29 +1,23 @@
-"""Inside/outside transfer function H(f) = P_inside / P_outside, with a per-bin
-noise estimate that becomes the fit weight.
-
-Two estimators:
-
-- :func:`sweep_transfer`: both channels deconvolved by the sweep (Farina 2000),
-  one common time window on both impulse responses, then the ratio of their
-  spectra. The room reaches both microphones, so it cancels in the ratio; the
-  window only drops the harmonic images (which arrive *before* the linear
-  response) and is long enough for the resonator's ringing to decay.
-- :func:`cross_spectral_transfer`: H1 = G_xy / G_xx with Welch averaging and the
-  ordinary coherence (Bendat & Piersol, *Random Data*, 4th ed. 2010, ch. 6 and 9),
-  for any broadband excitation.
-"""
+"""Sweep path: both channels deconvolved by the sweep (Farina 2000), one common
+time window on both impulse responses, then the ratio of their spectra. The
+room reaches both microphones, so it cancels in the ratio; the window only drops
+the harmonic images (which arrive *before* the linear response) and is long
+enough for the resonator's ringing to decay. The per-bin noise comes from the
+responses' noise-only stretch; long recordings deconvolve in
+:mod:`characterize.longfft` buffers and keep only the stretches that are read
+(:class:`Impulse`)."""
 
 from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
 
-from .errors import FitError, InputError
-from .excitation import Sweep, SweepParams, band_filter, inverse_spectrum, usable_band
+from ..errors import FitError, InputError
+from ..excitation import Sweep, SweepParams, band_filter, inverse_spectrum, usable_band
+from .core import TransferFunction, WindowInfo, estimate_peak
 
 #: Time before the direct sound's peak kept in the window (s); also the taper-in.
 PRE_ONSET_S = 0.004
@@ -38,78 +32,6 @@ MIN_WINDOW_S = 0.1
 HARMONIC_ORDERS_EXCLUDED = 8
 #: Harmonic orders summed into the THD.
 HARMONIC_ORDERS_THD = 5
-#: Segments averaged in the cross-spectral path should be at least this long,
-#: in units of 1/(bandwidth) = Q/f0 (Bendat & Piersol resolution bias rule).
-SEGMENT_BANDWIDTHS = 16.0
-#: Shortest Welch segment (s) when the recording allows: the reference spectrum
-#: must be resolved finely enough (room ripple) for the kernel model to hold.
-MIN_SEGMENT_S = 0.1
-#: Minimum number of Welch averages for the coherence-based error to hold.
-MIN_AVERAGES = 8
-
-
-@dataclass(frozen=True)
-class WindowInfo:
-    """The impulse-response window used on both channels."""
-
-    start_s: float  # relative to the direct sound's peak (negative: before it)
-    length_s: float
-    taper_in_s: float
-    taper_out_s: float
-    time_constants: float  # window length over the estimated Q/(pi f0)
-    reflection_s: float | None = None  # first strong reflection (one-microphone path)
-
-    def to_dict(self) -> dict[str, float | None]:
-        return {"start_s": self.start_s, "length_s": self.length_s,
-                "taper_in_s": self.taper_in_s, "taper_out_s": self.taper_out_s,
-                "time_constants": self.time_constants, "reflection_s": self.reflection_s}
-
-
-@dataclass(frozen=True)
-class TransferFunction:
-    """H(f) on a frequency grid, with what is needed for its per-bin noise.
-
-    The complex noise of bin k has variance
-    ``(noise_a[k] + |H[k]|**2 * noise_b[k])`` (E|n|^2): inside-channel noise and
-    outside-channel noise carried through the ratio. :meth:`sigma` evaluates it
-    for any |H| (the fit uses its own model, which is less noisy than the data).
-    """
-
-    freqs_hz: NDArray[np.float64]
-    h: NDArray[np.complex128]
-    noise_a: NDArray[np.float64]
-    noise_b: NDArray[np.float64]
-    excited_band_hz: tuple[float, float]
-    method: str
-    reference_db: NDArray[np.float64]  # outside-channel level per bin (dB, arbitrary ref)
-    coherence: NDArray[np.float64] | None = None
-    window: WindowInfo | None = None
-    averages: int | None = None
-    impulse_t_s: NDArray[np.float64] | None = None
-    impulse_inside: NDArray[np.float64] | None = None
-    impulse_outside: NDArray[np.float64] | None = None
-    #: Spectral smoothing the estimator applies to the true H (frequency offsets
-    #: in Hz and weights summing to 1), or None. The fit applies it to the model.
-    kernel: tuple[NDArray[np.float64], NDArray[np.float64]] | None = None
-    #: How the kernel acts: "linear" (E[H1] = H * K) or "h2" (E[H2] = (|H|^2 * K)/(H^* * K)).
-    kernel_form: str = "linear"
-    #: Total harmonic distortion of each channel against the excitation frequency
-    #: (sweep path only; orders 2..HARMONIC_ORDERS_THD), on ``freqs_hz``.
-    thd_inside: NDArray[np.float64] | None = None
-    thd_outside: NDArray[np.float64] | None = None
-
-    def sigma(self, h_abs: NDArray[np.float64] | None = None,
-              idx: NDArray[np.intp] | None = None) -> NDArray[np.float64]:
-        """Per-bin standard deviation of the complex noise (sqrt of E|n|^2), at
-        bins ``idx`` (default all), for |H| = ``h_abs`` (default the data's)."""
-        sel = slice(None) if idx is None else idx
-        a = np.abs(self.h[sel]) if h_abs is None else np.asarray(h_abs)
-        return np.sqrt(self.noise_a[sel] + a**2 * self.noise_b[sel])
-
-    @property
-    def resolution_hz(self) -> float:
-        """Median frequency step (Hz); uniform grids except for imported CSV."""
-        return float(np.median(np.diff(self.freqs_hz)))
 
 
 def _fast_len(n: int) -> int:
@@ -128,78 +50,6 @@ def _fast_below(n: int) -> int:
             return m
         m -= 1
     return int(n)
-
-
-#: Bins below this coherence are left out of the peak search (H2 and H1 blow up or
-#: sink where the inside channel is mostly noise).
-PEAK_SEARCH_MIN_COHERENCE = 0.5
-
-
-#: A resonance peak must stand this factor (3 dB) above the median |H| of the band.
-PEAK_MIN_PROMINENCE = 10 ** (3 / 20)
-
-
-def peak_search_values(tf: TransferFunction) -> NDArray[np.complex128]:
-    """H with the bins unfit for a peak search set to NaN: low coherence, or a
-    noise estimate larger than half of |H| (room notches in the reference)."""
-    h = tf.h
-    if tf.coherence is not None:
-        h = np.where(tf.coherence >= PEAK_SEARCH_MIN_COHERENCE, h, np.nan)
-    with np.errstate(invalid="ignore"):
-        sig = tf.sigma()
-        noisy = np.isfinite(sig) & (sig > 0.5 * np.abs(tf.h))
-    return np.where(noisy, np.nan, h)
-
-
-def estimate_peak(freqs_hz: NDArray[np.float64], h: NDArray[np.complex128],
-                  band_hz: tuple[float, float]) -> tuple[float, float]:
-    """Rough f0 and Q from |H|: the largest peak inside ``band_hz`` and its
-    half-power width (interpolated). Used for start values and windows only.
-
-    Raises :class:`FitError` when no peak stands out of the band edges.
-    """
-    f = freqs_hz
-    sel = np.flatnonzero((f >= band_hz[0]) & (f <= band_hz[1]) & np.isfinite(h))
-    if sel.size < 5:
-        raise FitError("too few frequency points in the excited band to find a resonance")
-    mag = np.abs(h[sel])
-    k = max(1, min(9, sel.size // 200))
-    if k > 1:
-        mag = np.convolve(mag, np.ones(k) / k, mode="same")
-    i = int(np.argmax(mag))
-    peak = mag[i]
-    if not peak > PEAK_MIN_PROMINENCE * float(np.median(mag)):
-        raise FitError(f"no resonance: |H| has no peak standing "
-                       f"{20 * math.log10(PEAK_MIN_PROMINENCE):.0f} dB above its median "
-                       f"between {f[sel[0]]:.1f} and {f[sel[-1]]:.1f} Hz")
-    if i == 0 or i == mag.size - 1:
-        raise FitError("no resonance peak inside the excited band (the largest |H| is at a "
-                       f"band edge, {f[sel[i]]:.1f} Hz)")
-    half = peak / math.sqrt(2)
-    lo = i
-    while lo > 0 and mag[lo] > half:
-        lo -= 1
-    hi = i
-    while hi < mag.size - 1 and mag[hi] > half:
-        hi += 1
-
-    def cross(j0: int, j1: int) -> float:
-        m0, m1 = mag[j0], mag[j1]
-        if m1 == m0:
-            return float(f[sel[j0]])
-        return float(f[sel[j0]] + (half - m0) * (f[sel[j1]] - f[sel[j0]]) / (m1 - m0))
-
-    f_lo = cross(lo, lo + 1) if mag[lo] <= half else float(f[sel[0]])
-    f_hi = cross(hi - 1, hi) if mag[hi] <= half else float(f[sel[-1]])
-    # parabolic interpolation of the peak on the (smoothed) magnitude
-    f0 = float(f[sel[i]])
-    y0, y1, y2 = mag[i - 1], mag[i], mag[i + 1]
-    den = y0 - 2 * y1 + y2
-    if den < 0:
-        f0 += 0.5 * (y0 - y2) / den * float(f[sel[i + 1]] - f[sel[i]])
-    width = max(f_hi - f_lo, float(f[1] - f[0]))
-    q = float(np.clip(f0 / width, 0.5, 1e4))
-    return f0, q
 
 
 def _noise_power(seg: NDArray[np.float64], n_out: int, rate_hz: float,
@@ -546,8 +396,8 @@ def _deconvolve(inside: NDArray[np.floating], outside: NDArray[np.floating] | No
         return (n_fft, onset, Impulse(n_fft, ir_in), Impulse(n_fft, ir_out),
                 lambda k: xinv[k])
 
-    from .excitation import band_response, long_inverse_spectrum
-    from .longfft import LongSpectrum
+    from ..excitation import band_response, long_inverse_spectrum
+    from ..longfft import LongSpectrum
 
     pre, adv_max = _pre_and_images(p, rate_hz)
     # past the recording by what clears the harmonic images and keeps the
@@ -716,141 +566,3 @@ def sweep_transfer(inside: NDArray[np.floating], outside: NDArray[np.floating] |
                             impulse_inside=np.array(seg_in[:length], dtype=np.float64),
                             impulse_outside=np.array(seg_out[:length], dtype=np.float64),
                             thd_inside=thd_in, thd_outside=thd_out)
-
-
-def hann_power_kernel(nperseg: int, rate_hz: float, oversample: int = 16,
-                      half_width_bins: int = 6
-                      ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
-    """The smoothing a Hann-windowed Welch estimate applies to a transfer function.
-
-    For broadband excitation with a locally flat spectrum, the expected cross-
-    and auto-spectra are the true ones convolved with the window's power
-    spectrum |W(f)|^2, so E[H1] ~ (H * |W|^2) / sum |W|^2 (Bendat & Piersol,
-    *Random Data*, 4th ed. 2010, §8.5 on resolution bias; Harris, "On the use
-    of windows for harmonic analysis with the discrete Fourier transform",
-    Proc. IEEE 66(1), 1978, for the Hann window). Returns frequency offsets (Hz)
-    and weights on a grid ``oversample`` times finer than the bins, over
-    +-``half_width_bins`` bins.
-    """
-    w = np.hanning(nperseg)
-    n_big = nperseg * oversample
-    spec = np.abs(np.fft.fft(w, n_big)) ** 2
-    k = np.arange(-half_width_bins * oversample, half_width_bins * oversample + 1)
-    weights = spec[k % n_big]
-    weights = weights / weights.sum()
-    return k * rate_hz / n_big, weights
-
-
-#: Samples transformed at once in the Welch loop (bounds its memory: about 8 bytes
-#: times this, for each of a few arrays).
-WELCH_BLOCK_SAMPLES = 2**21
-
-
-def welch_spectra(x: NDArray[np.floating], y: NDArray[np.floating], rate_hz: float,
-                  nperseg: int) -> tuple[NDArray[np.float64], NDArray[np.complex128],
-                                         NDArray[np.float64], NDArray[np.float64]]:
-    """Welch's averaged cross- and auto-spectra G_xy, G_xx, G_yy (one-sided
-    densities), as scipy.signal.csd and welch compute them with a periodic Hann
-    window, 50 % overlap and each segment's mean removed, but in blocks of
-    segments, so that memory stays near the size of the input (which may be
-    float32).
-
-    References
-    ----------
-    P.D. Welch, "The use of fast Fourier transform for the estimation of power
-    spectra", IEEE Trans. Audio Electroacoust. 15(2), 70-73 (1967).
-    """
-    from scipy import fft as sfft
-    from scipy.signal import get_window
-
-    m = int(nperseg)
-    step = m - m // 2
-    w = get_window("hann", m)
-    n_seg = (x.size - m) // step + 1
-    nf = m // 2 + 1
-    gxy = np.zeros(nf, dtype=np.complex128)
-    gxx = np.zeros(nf)
-    gyy = np.zeros(nf)
-    block = max(1, WELCH_BLOCK_SAMPLES // m)
-    for b0 in range(0, n_seg, block):
-        starts = (np.arange(b0, min(n_seg, b0 + block)) * step)[:, None] + np.arange(m)
-        xs = np.asarray(x[starts], dtype=np.float64)
-        ys = np.asarray(y[starts], dtype=np.float64)
-        xs -= xs.mean(axis=1, keepdims=True)
-        ys -= ys.mean(axis=1, keepdims=True)
-        fx = sfft.rfft(xs * w, axis=1)
-        fy = sfft.rfft(ys * w, axis=1)
-        gxy += np.sum(np.conj(fx) * fy, axis=0)
-        gxx += np.sum(np.abs(fx) ** 2, axis=0)
-        gyy += np.sum(np.abs(fy) ** 2, axis=0)
-    scale = 1.0 / (rate_hz * float(np.sum(w * w)) * max(n_seg, 1))
-    one_sided = np.full(nf, 2.0)
-    one_sided[0] = 1.0
-    if m % 2 == 0:
-        one_sided[-1] = 1.0
-    k = scale * one_sided
-    return np.fft.rfftfreq(m, 1 / rate_hz), gxy * k, gxx * k, gyy * k
-
-
-def cross_spectral_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64],
-                            rate_hz: float, *, nperseg: int | None = None,
-                            estimator: str = "h1") -> TransferFunction:
-    """H1 = G_xy/G_xx or H2 = G_yy/G_yx (x outside, y inside) with Welch
-    averaging and the ordinary coherence gamma^2 = |G_xy|^2/(G_xx G_yy) = H1/H2.
-
-    Noise at the reference (outside) microphone biases H1 low, noise at the
-    inside microphone biases H2 high (Bendat & Piersol, *Random Data*, 4th ed.
-    2010, ch. 6); with the reference at the mouth, ambient sound there is
-    excitation, not error, so H1 is the default.
-
-    The per-bin random error of H1 (Bendat & Piersol, *Random Data*, 4th ed.
-    2010, ch. 9) is
-
-    .. math::
-
-        \\varepsilon \\approx \\sqrt{\\frac{1-\\gamma^2}{2\\gamma^2 (n_d - 1)}}
-
-    for the magnitude (relative) and about the same in radians for the phase,
-    so the complex noise variance is :math:`2\\varepsilon^2|H|^2`. ``n_d`` is
-    the number of averages, corrected for the 50 % overlap of Hann segments.
-    The segment length is chosen from a first pass so that the resolution is a
-    small fraction (1/``SEGMENT_BANDWIDTHS``) of the resonance's bandwidth.
-    """
-    if estimator not in ("h1", "h2"):
-        raise ValueError(f"estimator must be one of ['h1', 'h2'], got {estimator!r}")
-    n = inside.size
-
-    def estimate(m: int) -> TransferFunction:
-        m = int(min(m, n))
-        f, gxy, gxx, gyy = welch_spectra(outside, inside, rate_hz, m)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            h = gxy / gxx if estimator == "h1" else gyy / np.conj(gxy)
-            coh = np.clip(np.abs(gxy) ** 2 / (gxx * gyy), 0.0, 1.0)
-        n_seg = max(1, (n - m) // (m // 2) + 1)
-        n_d = max(1.5, n_seg / 1.056)  # Hann, 50 % overlap (Welch 1967 variance ratio)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            # coherence 1 (identical channels) would give zero noise: keep a floor
-            rel2 = np.maximum(1 - coh, 1e-12) / (np.maximum(coh, 1e-12) * (n_d - 1))
-        rel2 = np.where(np.isfinite(rel2), rel2, 1e6)
-        level = np.max(gxx) if gxx.size else 1.0
-        excited = f[gxx > 1e-6 * level] if np.any(gxx > 0) else f
-        lo = max(float(excited[1]) if excited.size > 1 else f[1], 2 * rate_hz / m)
-        hi = min(float(excited[-1]) if excited.size else rate_hz / 2, 0.45 * rate_hz)
-        return TransferFunction(f, h.astype(np.complex128), np.zeros_like(f), rel2, (lo, hi),
-                                f"cross-spectral-{estimator}",
-                                10 * np.log10(np.maximum(gxx, 1e-300)),
-                                coherence=coh, averages=int(n_seg),
-                                kernel=hann_power_kernel(m, rate_hz),
-                                kernel_form="linear" if estimator == "h1" else "h2")
-
-    if nperseg is not None:
-        return estimate(nperseg)
-    m0 = 2 ** int(np.clip(round(math.log2(max(n / 16, 256))), 8, 20))
-    first = estimate(m0)
-    f0, q = estimate_peak(first.freqs_hz, peak_search_values(first), first.excited_band_hz)
-    want = max(SEGMENT_BANDWIDTHS * q / f0, MIN_SEGMENT_S) * rate_hz
-    limit = 2 * n // (MIN_AVERAGES + 1)
-    m = int(2 ** math.ceil(math.log2(max(want, 256))))
-    while m > limit and m > 256:
-        m //= 2
-    return estimate(m)
