@@ -126,7 +126,18 @@ _SPEC_KEYS: dict[str, tuple[str, ...]] = {
 }
 
 
+#: Column and key names people write for ours (a spelling match would answer
+#: 'file' with 'inside').
+SYNONYMS = {"file": "recording", "filename": "recording", "path": "recording",
+            "wav": "recording", "flac": "recording", "audio": "recording",
+            "recording_path": "recording", "name": "id", "item": "id", "object_file": "object",
+            "geometry": "object", "comment": "note", "notes": "note"}
+
+
 def _nearest(word: str, choices: Sequence[str]) -> str:
+    meant = SYNONYMS.get(word.strip().lower())
+    if meant in choices:
+        return f"did you mean '{meant}'? "
     close = difflib.get_close_matches(word.lower(), list(choices), n=1, cutoff=0.0)
     return f"did you mean '{close[0]}'? " if close else ""
 

@@ -516,6 +516,8 @@ def read_calibration(path: str | Path) -> Calibration:
     InputError
         Missing, unreadable or malformed file (one line naming the field).
     """
+    if Path(path).is_dir():  # 'calibrate --out DIR' writes DIR/calibration.toml
+        path = Path(path) / "calibration.toml"
     source = str(path)
     data = read_toml(path, "a calibration file")
     if data.get("schema") != SCHEMA:

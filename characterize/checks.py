@@ -265,3 +265,76 @@ def check_drive(drive: dict[str, Any]) -> list[Flag]:
                  f"moves {1000 * drive['displacement_m']:.2f} mm, "
                  f"{drive['displacement_over_diameter']:.2f} of the neck diameter: the flow "
                  "is nonlinear, so the fitted Q depends on the level; measure 10 dB lower")]
+
+
+#: A measured Q further than this many standard errors outside the predicted Q
+#: range raises q-mismatch.
+Q_MISMATCH_SIGMAS = 2.0
+#: Geometry far outside anything a resonator has (geometry-implausible): usually a
+#: unit typed wrong in the object file ("24 Mm" for "24 mm").
+PLAUSIBLE_F0_HZ = (1.0, 50e3)
+PLAUSIBLE_NECK_LENGTH_M = 10.0
+
+
+def q_interval(prediction: Prediction, uncorrected_outside_mic: bool = False
+               ) -> tuple[float, float]:
+    """The predicted Q interval a measurement is compared with: the prediction's
+    range (the viscous end term over 0.5a to 2a, physics.losses), widened to the
+    Q without radiation damping when the outside microphone's radiation is not
+    corrected (that microphone hears the mouth's radiation, so the measured Q
+    leaves out the radiation term; physics.radiation)."""
+    vals = [v for v in prediction.q_predicted_range if math.isfinite(v)]
+    if not vals:
+        vals = [prediction.q_predicted]
+    if uncorrected_outside_mic and math.isfinite(prediction.q_without_radiation):
+        vals.append(prediction.q_without_radiation)
+    return min(vals), max(vals)
+
+
+def check_q_mismatch(fit: FitResult, prediction: Prediction,
+                     uncorrected_outside_mic: bool = False) -> list[Flag]:
+    """q-mismatch: the measured Q lies more than Q_MISMATCH_SIGMAS standard errors
+    outside the predicted Q interval (q_interval). The tolerance is the
+    prediction's own range, so an object whose loss model is uncertain (a wide
+    range) is judged loosely; below it means extra losses (a leak, a crack, a
+    rough or lined neck, a soft wall; severity info), above it a wrong dimension
+    or end (warning)."""
+    lo, hi = q_interval(prediction, uncorrected_outside_mic)
+    if not (math.isfinite(lo) and math.isfinite(fit.q)):
+        return []
+    s = fit.q_stderr if math.isfinite(fit.q_stderr) else 0.0
+    k = Q_MISMATCH_SIGMAS
+    rng = f"{lo:.3g} to {hi:.3g} (best {prediction.q_predicted:.3g})"
+    if fit.q + k * s < lo:
+        # info: the loss model leaves out losses that real objects have (wall
+        # roughness and give, joints), so a Q below the range is common and tells
+        # more than it warns; a Q above it has no such explanation
+        return [Flag("q-mismatch", "info",
+                     f"measured Q {fit.q:.3g} is below the predicted {rng}: extra losses "
+                     "(a leak, a crack, a rough or lined neck, a soft wall) or a wrong "
+                     "dimension")]
+    if fit.q - k * s > hi:
+        return [Flag("q-mismatch", "warning",
+                     f"measured Q {fit.q:.3g} is above the predicted {rng}: check the neck "
+                     "diameter and length and the end conditions in the object file")]
+    return []
+
+
+def check_geometry(obj: Any, prediction: Prediction) -> list[Flag]:
+    """geometry-implausible: a predicted f0 below 1 Hz or above 50 kHz, or a neck
+    longer than 10 m, is far outside anything built as a resonator; usually a unit
+    typed wrong in the object file."""
+    out: list[str] = []
+    lo, hi = PLAUSIBLE_F0_HZ
+    f0 = prediction.f0_hz
+    if math.isfinite(f0) and not (lo <= f0 <= hi):
+        out.append(f"predicted f0 {f0:.3g} Hz is outside {lo:g} Hz to {hi / 1e3:g} kHz")
+    neck = getattr(obj, "neck", None)
+    length = getattr(neck, "length_m", None)
+    if length is not None and length > PLAUSIBLE_NECK_LENGTH_M:
+        out.append(f"neck length {length:.3g} m is over {PLAUSIBLE_NECK_LENGTH_M:g} m")
+    if not out:
+        return []
+    return [Flag("geometry-implausible", "warning",
+                 "; ".join(out) + ": check the units in the object file (mm, not Mm; mL, "
+                 "not ML)")]

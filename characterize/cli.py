@@ -14,8 +14,13 @@ import click
 
 from . import __version__
 from .commands._errors import handles_errors
-from .commands._params import Quantity, air_options
+from .commands._params import FREQUENCY, LENGTH, SECONDS, Fraction, Level, Quantity, air_options
 from .errors import FitError, InputError
+
+
+#: Exit status after Ctrl-C (128 + SIGINT, the shell's convention), distinct from
+#: 1 (no fit, failed item) and 2 (bad input).
+INTERRUPTED = 130
 
 
 class OneLineErrors(click.Group):
@@ -34,13 +39,27 @@ class OneLineErrors(click.Group):
             click.echo(f"characterize: error: {exc.format_message()} "
                        f"(see characterize{cmd} --help)", err=True)
             sys.exit(2)
-        except click.exceptions.Abort:
-            click.echo("characterize: aborted", err=True)
-            sys.exit(1)
+        except (click.exceptions.Abort, KeyboardInterrupt):
+            click.echo("characterize: interrupted", err=True)
+            sys.exit(INTERRUPTED)
         except click.exceptions.ClickException as exc:
             click.echo(f"characterize: error: {exc.format_message()}", err=True)
             sys.exit(exc.exit_code)
         sys.exit(rv if isinstance(rv, int) else 0)
+
+    def format_commands(self, ctx: click.Context, formatter: click.HelpFormatter) -> None:
+        """The command list with each command's whole one-line summary (click
+        cuts them to fit the terminal's width)."""
+        rows = []
+        for name in self.list_commands(ctx):
+            cmd = self.get_command(ctx, name)
+            if cmd is None or cmd.hidden:
+                continue
+            text = cmd.short_help or (cmd.help or "").strip().split("\n\n")[0]
+            rows.append((name, " ".join(text.split())))
+        if rows:
+            with formatter.section("Commands"):
+                formatter.write_dl(rows)
 
 
 @click.group(cls=OneLineErrors, context_settings={"help_option_names": ["-h", "--help"]})
@@ -49,27 +68,30 @@ def main() -> None:
     """Measure acoustic resonators: sweep, record, fit f0 and Q, compare with geometry."""
 
 
-@main.command()
+@main.command(short_help="Write an exponential sine sweep and its sidecar.")
 @click.argument("out", type=click.Path(dir_okay=False, path_type=Path))
-@click.option("--start", "start_hz", type=float, default=20.0, show_default=True,
-              help="Start frequency (Hz).")
-@click.option("--stop", "stop_hz", type=float, default=4000.0, show_default=True,
-              help="Stop frequency (Hz).")
-@click.option("--duration", "duration_s", type=float, default=5.0, show_default=True,
-              help="Sweep duration (s), fades included.")
+@click.option("--start", "start_hz", type=FREQUENCY, default=20.0, show_default=True,
+              help="Start frequency ('20 Hz'; a bare number is Hz).")
+@click.option("--stop", "stop_hz", type=FREQUENCY, default=4000.0, show_default=True,
+              help="Stop frequency ('4 kHz'; a bare number is Hz).")
+@click.option("--duration", "duration_s", type=SECONDS, default=5.0, show_default=True,
+              help="Sweep duration ('5 s'; a bare number is s), fades included.")
 @click.option("--rate", "rate_hz", type=int, default=48000, show_default=True,
               help="Sample rate (Hz).")
-@click.option("--level", "level_dbfs", type=float, default=-12.0, show_default=True,
-              help="Peak level (dBFS). Start low and step up.")
-@click.option("--fade-in", "fade_in_s", type=float, default=0.05, show_default=True,
-              help="Half-Hann fade-in (s).")
-@click.option("--fade-out", "fade_out_s", type=float, default=0.01, show_default=True,
-              help="Half-Hann fade-out (s).")
-@click.option("--tail", "tail_s", type=float, default=2.0, show_default=True,
-              help="Silence after the sweep (s): longer than the ringing, Q/(pi f0) x 10.")
+@click.option("--level", "level_dbfs", type=Level("dBFS"), default=-12.0, show_default=True,
+              help="Peak level ('-12 dBFS'; a bare number is dBFS). Start low and step up.")
+@click.option("--fade-in", "fade_in_s", type=SECONDS, default=0.05, show_default=True,
+              help="Half-Hann fade-in ('50 ms'; a bare number is s).")
+@click.option("--fade-out", "fade_out_s", type=SECONDS, default=0.01, show_default=True,
+              help="Half-Hann fade-out ('10 ms'; a bare number is s).")
+@click.option("--tail", "tail_s", type=SECONDS, default=2.0, show_default=True,
+              help="Silence after the sweep ('2 s'; a bare number is s): longer than the "
+                   "ringing, Q/(pi f0) x 10.")
 @click.option("--force", is_flag=True, help="Overwrite OUT and its sidecar.")
+@click.option("--json", "as_json", is_flag=True,
+              help="Print the sweep's parameters (what the sidecar holds) as JSON.")
 @handles_errors
-def sweep(out: Path, force: bool, **kw: Any) -> None:
+def sweep(out: Path, force: bool, as_json: bool, **kw: Any) -> None:
     """Write an exponential sine sweep OUT.wav and its sidecar OUT.toml."""
     import soundfile as sf
 
@@ -92,13 +114,22 @@ def sweep(out: Path, force: bool, **kw: Any) -> None:
     atomic_write(out, lambda tmp: sf.write(tmp, s.samples, int(params.rate_hz),
                                            subtype="PCM_24", format="WAV"))
     atomic_write_text(side, sidecar_text(params))
+    if as_json:
+        from . import __version__
+        from .report.document import to_json
+
+        click.echo(to_json({"schema": "characterize.sweep/1", "tool_version": __version__,
+                            "sweep": params.to_dict(), "wav": str(out), "sidecar": str(side)}),
+                   nl=False)
+        click.echo(SAFETY_CAUTION, err=True)
+        return
     click.echo(f"wrote {out} ({params.duration_s:g} s sweep {params.start_hz:g} to "
                f"{params.stop_hz:g} Hz at {params.level_dbfs:g} dBFS, {params.tail_s:g} s tail) "
                f"and {side}")
     click.echo(SAFETY_CAUTION, err=True)
 
 
-@main.command()
+@main.command(short_help="Fit f0, Q, gain and delay to a recording or a transfer CSV.")
 @click.argument("recording", type=click.Path(path_type=Path), required=False)
 @click.option("--object", "object_path", type=click.Path(path_type=Path),
               help="Object file (TOML) with the geometry.")
@@ -118,20 +149,22 @@ def sweep(out: Path, force: bool, **kw: Any) -> None:
               help="Channel (from 1) of the microphone inside the cavity.")
 @click.option("--outside", type=int, default=2, show_default=True,
               help="Channel (from 1) of the microphone just outside the mouth.")
-@click.option("--band", type=(float, float), default=None, metavar="LO HI",
-              help="Fit exactly this band (Hz); default: found around the peak.")
+@click.option("--band", type=(FREQUENCY, FREQUENCY), default=None, metavar="LO HI",
+              help="Fit exactly this band ('180 Hz' '300 Hz'; bare numbers are Hz); "
+                   "default: found around the peak.")
 @air_options
-@click.option("--tolerance", type=float, default=None,
-              help="f0 mismatch that raises a warning, as a fraction [default: what the "
-                   "geometry model promises for the shape, 0.02 to 0.035].")
-@click.option("--outside-distance", "outside_distance_m", type=Quantity("length"),
+@click.option("--tolerance", type=Fraction(), default=None,
+              help="f0 mismatch that raises a warning, '3 %' or a fraction 0.03 [default: "
+                   "what the geometry model promises for the shape, 2 to 3.5 %].")
+@click.option("--outside-distance", "outside_distance_m", type=LENGTH,
               default=None, help="Distance of the outside microphone from the mouth "
               "('50 mm'): correct H for the mouth's own radiation reaching it.")
 @click.option("--calibration", "calibration_path", type=click.Path(path_type=Path),
               default=None, help="Calibration file from 'characterize calibrate': channel "
               "gain/phase match and the inside level (cavity SPL, neck motion).")
-@click.option("--window", "window_ms", type=float, default=None,
-              help="Impulse-response window (ms) on the sweep path; default automatic.")
+@click.option("--window", "window_s", type=Quantity("time", bare=("ms", 1e-3)), default=None,
+              help="Impulse-response window on the sweep path ('250 ms'; a bare number is "
+                   "ms); default automatic.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False, path_type=Path),
               help="Write DIR/result.json, response.png, transfer.csv, report.html and "
                    "report.pdf.")
@@ -145,7 +178,7 @@ def fit(recording: Path | None, object_path: Path | None, sweep_path: Path | Non
         outside: int, band: tuple[float, float] | None, temperature_c: float | None,
         relative_humidity: float | None, pressure_pa: float | None, tolerance: float | None,
         outside_distance_m: float | None, calibration_path: Path | None,
-        window_ms: float | None, out_dir: Path | None, as_json: bool, strict: bool,
+        window_s: float | None, out_dir: Path | None, as_json: bool, strict: bool,
         force: bool) -> None:
     """Fit f0, Q, gain and delay to a RECORDING (or a measured --transfer CSV).
 
@@ -175,7 +208,7 @@ def fit(recording: Path | None, object_path: Path | None, sweep_path: Path | Non
                          relative_humidity=relative_humidity, pressure_pa=pressure_pa,
                          tolerance=tolerance, outside_distance_m=outside_distance_m,
                          calibration_path=calibration_path,
-                         window_s=None if window_ms is None else window_ms / 1000.0)
+                         window_s=window_s)
     except FitError as exc:
         # exit status 1 either way; with --json the no-fit document goes to stdout
         if as_json and exc.document is not None:

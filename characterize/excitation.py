@@ -312,6 +312,22 @@ def estimate_params(samples: NDArray[np.floating], rate_hz: float,
                        tail_s=(x.size - e1) / rate_hz)
 
 
+def _check_is_sidecar(side: Path, wav: str | Path) -> None:
+    """Refuse, saying what happened, a TOML beside the sweep that is not a sweep
+    sidecar: usually the recording and --sweep were swapped, and the lookup by
+    stem found the recording's object file."""
+    from .fileio import read_toml
+
+    data = read_toml(side, "a sweep sidecar")
+    if "sweep" in data or "start_hz" in data:
+        return
+    what = ("an object file" if any(k in data for k in ("cavity", "neck", "name", "kind"))
+            else "not a sweep sidecar (no [sweep] table)")
+    raise InputError(str(wav), "--sweep", f"{side.name} beside it is {what}, so {Path(wav).name} "
+                     "is probably the recording: were the recording and --sweep swapped? "
+                     "(--sweep takes the file that was played)")
+
+
 def load_sweep(path: str | Path, rate_hz: float | None = None) -> Sweep:
     """Read a sweep WAV; take its exact parameters from the sidecar when present,
     else read them off the samples (:func:`estimate_params`).
@@ -330,6 +346,7 @@ def load_sweep(path: str | Path, rate_hz: float | None = None) -> Sweep:
     x = np.ascontiguousarray(rec.view(1))
     side = sidecar_path(path)
     if side.exists():
+        _check_is_sidecar(side, path)
         params = read_sidecar(side)
         if params.rate_hz != rec.sample_rate_hz:
             raise InputError(str(side), "sweep.rate_hz",

@@ -133,3 +133,22 @@ def read_toml(path: str | os.PathLike[str], what: str) -> dict[str, Any]:
     except tomllib.TOMLDecodeError as exc:
         raise InputError(str(path), None,
                          f"not valid TOML: {' '.join(str(exc).split())}") from None
+
+
+#: Names that are files, not folders: refused for --out (a folder on every command).
+_FILE_SUFFIXES = (".json", ".toml", ".csv", ".png", ".svg", ".html", ".pdf", ".txt", ".wav")
+
+
+def out_folder(out_dir: str | os.PathLike[str], names: list[str] | tuple[str, ...], *,
+               force: bool, option: str = "--out") -> list[Path]:
+    """The files ``names`` inside the output folder ``out_dir`` (``--out DIR`` means
+    a folder on every command), each checked writable; a file given for the
+    folder is refused in one line."""
+    d = Path(out_dir)
+    if not d.is_dir() and d.suffix.lower() in _FILE_SUFFIXES:
+        raise InputError(str(d), option, f"{option} names a folder (it receives "
+                         f"{', '.join(names)}), not a file")
+    if d.exists() and not d.is_dir():
+        raise InputError(str(d), option, f"is a file; {option} names a folder (it receives "
+                         f"{', '.join(names)})")
+    return [check_writable(d / n, force=force) for n in names]

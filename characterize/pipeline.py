@@ -37,6 +37,8 @@ from .checks import (
     check_clipping,
     check_drive,
     check_end_correction,
+    check_geometry,
+    check_q_mismatch,
     check_f0_mismatch,
     check_fit_quality,
     check_in_band,
@@ -499,7 +501,9 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
         from .fitting.modes import find_resonances
 
         flags += check_multiple_peaks(fit, find_resonances(tf, fit.band_hz))
-    prediction, derived, used_tol = _geometry(obj, air, fit, flags, tolerance)
+    prediction, derived, used_tol = _geometry(
+        obj, air, fit, flags, tolerance,
+        uncorrected_mic=two_mic and not outside_mic["correction_applied"])
     drive = None
     if cal is not None and rec is not None:
         drive = _drive(rec, inside, cal, fit, obj, air, flags)
@@ -524,7 +528,8 @@ def _as_method(tf: TransferFunction, method: str) -> TransferFunction:
 
 
 def _geometry(obj: ResonatorObject | None, air: AirState, fit: FitResult, flags: list[Flag],
-              tolerance: float | None) -> tuple[Prediction | None, Derived | None, float]:
+              tolerance: float | None, uncorrected_mic: bool = False
+              ) -> tuple[Prediction | None, Derived | None, float]:
     if obj is None:
         return None, None, F0_TOLERANCE if tolerance is None else tolerance
     prediction = predict(obj, air)
@@ -532,6 +537,8 @@ def _geometry(obj: ResonatorObject | None, air: AirState, fit: FitResult, flags:
     tol = tolerance if tolerance is not None else float(
         getattr(prediction, "f0_tolerance", F0_TOLERANCE))
     flags += check_f0_mismatch(fit, prediction, tol)
+    flags += check_geometry(obj, prediction)
+    flags += check_q_mismatch(fit, prediction, uncorrected_mic)
     if obj.kind == "helmholtz":
         flags += check_end_correction(derived, PLAUSIBLE_END_CORRECTION_OVER_RADIUS)
     return prediction, derived, tol

@@ -84,13 +84,23 @@ def parse_quantity(
     if common is not None:  # the usual units without loading pint (start-up time)
         si = value * common
     else:
+        meant = case_typo(unit, dimension)
         ureg = _registry()
         try:
             q = ureg.Quantity(value, unit)
             si = q.to(si_unit).magnitude
         except Exception:  # pint raises several types: undefined unit, dimensionality...
+            if meant is not None:
+                raise InputError(source, field, f"{text!r}: unknown unit {unit!r}; did you mean "
+                                 f"{meant}?") from None
             raise InputError(source, field, f"{text!r} is not a {dimension} (expected e.g. "
                              f"{_EXAMPLES[dimension]!r})") from None
+        if meant is not None:
+            ratio = abs(float(si)) / (abs(value) * _COMMON[dimension][meant]) if value else 1.0
+            if not (1e-3 < ratio < 1e3):
+                raise InputError(source, field, f"{text!r} reads as {ratio:.0e} times "
+                                 f"'{value:g} {meant}'; did you mean {meant}? (unit letters "
+                                 "are case-sensitive: M is mega, m milli)")
     si = float(si)
     if not math.isfinite(si):
         raise InputError(source, field, f"{text!r} is not finite")
@@ -99,10 +109,29 @@ def parse_quantity(
     return si
 
 
+def case_typo(unit: str, dimension: str) -> str | None:
+    """The common unit of this dimension that ``unit`` spells with other capitals
+    ("ML", "Ml" -> "mL"; "Mm" -> "mm"; "KHz" -> "kHz"), or None. A unit that only
+    differs in case from a common one is usually a typo that changes the value a
+    thousand-million-fold (M is mega, m milli; SI Brochure, 9th ed., 2019, 3)."""
+    if unit in _COMMON.get(dimension, {}):
+        return None
+    low = unit.lower()
+    for u in _COMMON.get(dimension, {}):
+        if u.lower() == low:
+            return u
+    return None
+
+
 def _check_celsius(value_c: float, text: Any, source: str, field: str) -> float:
     if not math.isfinite(value_c) or value_c <= -273.15:
         raise InputError(source, field, f"{text!r} is below absolute zero or not finite")
     return value_c
+
+
+#: A bare temperature above this (°C) that is an air temperature in kelvin
+#: (213 to 353 K) is refused as probably typed in kelvin.
+BARE_CELSIUS_LIMIT = 100.0
 
 
 def parse_temperature_c(text: Any, source: str, field: str) -> float:
@@ -116,6 +145,9 @@ def parse_temperature_c(text: Any, source: str, field: str) -> float:
         raise InputError(source, field, f"expected a temperature such as '21 degC', got {text!r}")
     if isinstance(text, (int, float)):
         value_c = _to_float(text, source, field)
+        if BARE_CELSIUS_LIMIT < value_c and -60.0 <= value_c - 273.15 <= 80.0:
+            raise InputError(source, field, f"{value_c:g} °C is not an air temperature; did you "
+                             f"mean '{value_c:g} K'? (a bare number is °C)")
     else:
         value, unit = _split(text, source, field)
         if not unit:

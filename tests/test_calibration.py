@@ -174,7 +174,7 @@ class TestCommand:
         rec = tmp_path / "cal.wav"
         x = _tone()
         sf.write(rec, np.stack([x, 0.5 * x], axis=1), 48000, subtype="PCM_24")
-        out = tmp_path / "mics.toml"
+        out = tmp_path / "mics"  # --out is a folder: mics/calibration.toml
         res = self._run(rec, "--channel", 1, "--out", out)
         assert res.exit_code == 0, res.output
         assert "hearing" in res.stderr
@@ -189,15 +189,15 @@ class TestCommand:
     def test_no_tone_is_exit_2_one_line(self, tmp_path):
         rec = tmp_path / "noise.wav"
         sf.write(rec, 0.1 * np.random.default_rng(0).standard_normal((48000 * 2, 2)), 48000)
-        out = tmp_path / "mics.toml"
+        out = tmp_path / "mics"
         res = self._run(rec, "--channel", 1, "--out", out)
         assert res.exit_code == 2
         assert len(res.stderr.strip().splitlines()) == 1
         assert "no stable tone" in res.stderr
-        assert not out.exists()
+        assert not (out / "calibration.toml").exists()
 
     def test_needs_channel_or_swap(self, tmp_path):
-        res = self._run(tmp_path / "x.wav", "--out", tmp_path / "m.toml")
+        res = self._run(tmp_path / "x.wav", "--out", tmp_path / "m")
         assert res.exit_code == 2 and "--channel" in res.stderr
 
     def test_swap_recovers_mismatch(self, tmp_path):
@@ -215,7 +215,7 @@ class TestCommand:
         p1, p2 = tmp_path / "i.wav", tmp_path / "ii.wav"
         write_recording(str(p1), rec_i, setup.rate_hz, "FLOAT")
         write_recording(str(p2), rec_ii, setup.rate_hz, "FLOAT")
-        out = tmp_path / "mics.toml"
+        out = tmp_path / "mics"
         res = self._run(p1, "--swap", p2, "--out", out)
         assert res.exit_code == 0, res.stderr
         rel = read_calibration(out).relative

@@ -79,14 +79,18 @@ def test_air_overrides(tmp_path):
 
 def test_out_and_sketch_written_and_not_overwritten(tmp_path):
     obj = _write(tmp_path, BOTTLE)
-    out, png = tmp_path / "p.json", tmp_path / "s.png"
+    out, png = tmp_path / "pred", tmp_path / "s.png"
     res = run(obj, "--out", out, "--sketch", png)
     assert res.exit_code == 0, res.stderr
-    assert json.loads(out.read_text())["prediction"]["f0_hz"] > 0
+    assert json.loads((out / "prediction.json").read_text())["prediction"]["f0_hz"] > 0
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert (out / "sketch.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     res = run(obj, "--out", out)
     assert res.exit_code == 2 and "--force" in res.stderr
     assert run(obj, "--out", out, "--force").exit_code == 0
+    # --out is a folder on every command: a file name is refused in one line
+    res = run(obj, "--out", tmp_path / "p.json")
+    assert res.exit_code == 2 and "names a folder" in res.stderr
 
 
 @pytest.mark.parametrize("name", ["listening-jar-04", "absorber-cell-b2", "port-check-k1"])

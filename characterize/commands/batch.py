@@ -11,7 +11,7 @@ import click
 from ._errors import handles_errors
 
 
-@click.command("batch", short_help="Check every recording in a manifest against a spec; reports.")
+@click.command("batch", short_help="Check every recording of a manifest against a spec.")
 @click.argument("manifest", type=click.Path(path_type=Path))
 @click.option("--spec", "spec_path", required=True, type=click.Path(path_type=Path),
               help="Spec (TOML): f0 target and tolerance, Q limits, flags that fail.")
@@ -23,9 +23,11 @@ from ._errors import handles_errors
 @click.option("--resume", is_flag=True,
               help="Keep the items already done in --out; do the rest (failed ones again).")
 @click.option("--force", is_flag=True, help="Recompute every item and overwrite --out.")
+@click.option("--json", "as_json", is_flag=True,
+              help="Print the summary document (what summary.json holds) instead of the text.")
 @handles_errors
 def batch(manifest: Path, spec_path: Path, out_dir: Path, workers: int | None, resume: bool,
-          force: bool) -> None:
+          force: bool, as_json: bool) -> None:
     """Fit every recording in MANIFEST.csv, check each against the spec, and
     write per-item results, batch statistics and reports.
 
@@ -69,8 +71,13 @@ def batch(manifest: Path, spec_path: Path, out_dir: Path, workers: int | None, r
         except KeyboardInterrupt:
             click.echo(f"\ncharacterize: batch interrupted: the finished items are saved in "
                        f"{Path(out_dir) / 'items'}; rerun with --resume", err=True)
-            sys.exit(1)
+            sys.exit(130)
     written = write_reports(summary, out_dir)
+    if as_json:
+        from ..report.document import to_json
+
+        click.echo(to_json(summary.to_dict()), nl=False)
+        sys.exit(0 if summary.all_passed else 1)
     st = summary.stats
     click.echo(f"{st.n_items} items: {st.n_pass} pass, {st.n_fail} fail, {st.n_error} "
                f"without a result; pass rate {100 * st.pass_rate:.1f} %")

@@ -16,6 +16,7 @@ from typing import Any
 import click
 
 from ._errors import handles_errors
+from ._params import Level
 
 #: Points of the stored relative calibration (log-spaced band averages).
 RELATIVE_POINTS = 200
@@ -77,12 +78,24 @@ def _relative(recording: Path, swapped: Path, sweep: Path | None, inside: int, o
                                (str(recording), str(swapped)))
 
 
-@click.command()
+def calibration_document(cal: Any) -> dict[str, Any]:
+    """The ``calibrate --json`` document: what the calibration file holds."""
+    from dataclasses import asdict
+
+    from .. import __version__
+
+    return {"schema": "characterize.calibration/1", "tool_version": __version__,
+            "channels": [asdict(c) for _, c in sorted(cal.channels.items())],
+            "relative": None if cal.relative is None else asdict(cal.relative)}
+
+
+@click.command(short_help="Channel sensitivity from a calibrator, or a microphone swap.")
 @click.argument("recording", type=click.Path(path_type=Path))
 @click.option("--channel", type=int, default=None,
               help="Channel (from 1) that recorded the calibrator's tone.")
-@click.option("--level", "level_db", type=float, default=94.0, show_default=True,
-              help="The calibrator's level (dB SPL; 94 dB = 1 Pa, 114 dB = 10 Pa).")
+@click.option("--level", "level_db", type=Level("dB"), default=94.0, show_default=True,
+              help="The calibrator's level ('94 dB'; a bare number is dB SPL; 94 dB = 1 Pa, "
+                   "114 dB = 10 Pa).")
 @click.option("--swap", "swapped", type=click.Path(path_type=Path), default=None,
               help="Second recording with the two microphones exchanged: store the "
                    "channels' relative gain and phase (ISO 10534-2 switching).")
@@ -92,15 +105,17 @@ def _relative(recording: Path, swapped: Path, sweep: Path | None, inside: int, o
               help="With --swap: channel of the inside microphone in RECORDING.")
 @click.option("--outside", type=int, default=2, show_default=True,
               help="With --swap: channel of the outside microphone in RECORDING.")
-@click.option("--out", "out_path", type=click.Path(dir_okay=False, path_type=Path),
-              required=True, help="Calibration file to write (TOML).")
+@click.option("--out", "out_dir", type=click.Path(file_okay=False, path_type=Path),
+              required=True, help="Folder for DIR/calibration.toml (give 'fit --calibration' "
+                                  "the folder or the file).")
+@click.option("--json", "as_json", is_flag=True, help="Print the calibration document (JSON).")
 @click.option("--merge", is_flag=True,
               help="Add to an existing calibration file, keeping its other entries.")
 @click.option("--force", is_flag=True, help="Overwrite an existing calibration file.")
 @handles_errors
 def calibrate(recording: Path, channel: int | None, level_db: float, swapped: Path | None,
-              sweep_path: Path | None, inside: int, outside: int, out_path: Path, merge: bool,
-              force: bool) -> None:
+              sweep_path: Path | None, inside: int, outside: int, out_dir: Path,
+              as_json: bool, merge: bool, force: bool) -> None:
     """Store a channel's sensitivity from a calibrator RECORDING, or (with --swap)
     the relative gain and phase of the inside and outside channels."""
     from ..calibration import (
@@ -112,7 +127,7 @@ def calibrate(recording: Path, channel: int | None, level_db: float, swapped: Pa
         write_calibration,
     )
     from ..errors import InputError
-    from ..fileio import check_writable
+    from ..fileio import check_writable, out_folder
 
     if (channel is None) == (swapped is None):
         raise InputError("calibrate", None, "give either --channel N (a calibrator tone) or "
@@ -123,6 +138,7 @@ def calibrate(recording: Path, channel: int | None, level_db: float, swapped: Pa
         raise InputError("--level", None, f"{level_db:g} dB is not a calibrator level "
                          "(expected e.g. 94 or 114)")
     base = Calibration()
+    out_path = out_folder(out_dir, ["calibration.toml"], force=True)[0]
     if merge and out_path.exists():
         base = read_calibration(out_path)
     else:
@@ -138,11 +154,11 @@ def calibrate(recording: Path, channel: int | None, level_db: float, swapped: Pa
         cal = base.with_channel(ChannelCalibration(channel, k, level_db, tone.frequency_hz,
                                                    str(recording)))
         write_calibration(out_path, cal, force=True)
-        click.echo(f"channel {channel}: {tone.frequency_hz:.1f} Hz tone at "
-                   f"{tone.level_dbfs:.2f} dBFS rms over {tone.stable_s:.1f} s (spread "
-                   f"{tone.spread_db:.2f} dB) = {level_db:g} dB SPL -> sensitivity "
-                   f"{k:.5g} FS/Pa ({20 * math.log10(k):.2f} dB re 1 FS/Pa); "
-                   f"wrote {out_path}")
+        said = (f"channel {channel}: {tone.frequency_hz:.1f} Hz tone at "
+                f"{tone.level_dbfs:.2f} dBFS rms over {tone.stable_s:.1f} s (spread "
+                f"{tone.spread_db:.2f} dB) = {level_db:g} dB SPL -> sensitivity "
+                f"{k:.5g} FS/Pa ({20 * math.log10(k):.2f} dB re 1 FS/Pa); "
+                f"wrote {out_path}")
     else:
         assert swapped is not None
         rel = _relative(recording, swapped, sweep_path, inside, outside)
@@ -152,10 +168,16 @@ def calibrate(recording: Path, channel: int | None, level_db: float, swapped: Pa
 
         mags = np.asarray(rel.ratio_magnitude)
         phs = np.asarray(rel.ratio_phase_deg)
-        click.echo(f"channels {inside}/{outside}: relative gain {20 * np.log10(mags.min()):+.2f} "
-                   f"to {20 * np.log10(mags.max()):+.2f} dB, phase {phs.min():+.2f} to "
-                   f"{phs.max():+.2f}° over {rel.freqs_hz[0]:.0f} to "
-                   f"{rel.freqs_hz[-1]:.0f} Hz; wrote {out_path}")
+        said = (f"channels {inside}/{outside}: relative gain {20 * np.log10(mags.min()):+.2f} "
+                f"to {20 * np.log10(mags.max()):+.2f} dB, phase {phs.min():+.2f} to "
+                f"{phs.max():+.2f}° over {rel.freqs_hz[0]:.0f} to "
+                f"{rel.freqs_hz[-1]:.0f} Hz; wrote {out_path}")
+    if as_json:
+        from ..report.document import to_json
+
+        click.echo(to_json(calibration_document(cal)), nl=False)
+    else:
+        click.echo(said)
     click.echo("caution: sound calibrators and test signals can be loud; keep the calibrator "
                "on the microphone, protect your hearing above 85 dB(A) and follow local "
                "occupational-noise rules", err=True)

@@ -15,7 +15,8 @@ from ..report.tuning_report import LEVELS_CAUTION as CAUTION
 from ._errors import handles_errors
 
 
-@click.command("levels", help=f"""Drive-level study from MANIFEST.csv.
+@click.command("levels", short_help="Drive-level study: Q and steady force against the level.",
+               help=f"""Drive-level study from MANIFEST.csv.
 
 A manifest of recordings (or result documents) of one object at increasing drive
 level, with the cavity SPL in column spl_db (dB re 20 uPa; a calibrated result's

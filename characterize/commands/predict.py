@@ -113,32 +113,35 @@ def prediction_text(obj: Any, air: Any, sources: dict[str, str], pred: Any) -> s
     return "\n".join(lines)
 
 
-@click.command()
+@click.command(short_help="Predict f0, the next modes and Q from an object file.")
 @click.argument("object_path", metavar="OBJECT", type=click.Path(path_type=Path))
 @air_options
 @click.option("--co2", "co2_fraction", type=_Co2(), default=None,
               help="CO2 ('400 ppm', '0.04 %' or a fraction); overrides the object file.")
 @click.option("--json", "as_json", is_flag=True, help="Print the prediction document (JSON).")
-@click.option("--out", "out_path", type=click.Path(dir_okay=False, path_type=Path),
-              help="Write the prediction document (JSON) to this file.")
+@click.option("--out", "out_dir", type=click.Path(file_okay=False, path_type=Path),
+              help="Write DIR/prediction.json (the document) and DIR/sketch.png.")
 @click.option("--sketch", "sketch_path", type=click.Path(dir_okay=False, path_type=Path),
               help="Draw the object with its dimensions and end corrections (PNG).")
-@click.option("--force", is_flag=True, help="Overwrite --out and --sketch files.")
+@click.option("--force", is_flag=True, help="Overwrite the files in --out and --sketch.")
 @handles_errors
 def predict(object_path: Path, temperature_c: float | None, relative_humidity: float | None,
             pressure_pa: float | None, co2_fraction: float | None, as_json: bool,
-            out_path: Path | None, sketch_path: Path | None, force: bool) -> None:
+            out_dir: Path | None, sketch_path: Path | None, force: bool) -> None:
     """Predict f0, the next modes and Q of the resonator in OBJECT (TOML)."""
     from ..errors import InputError
-    from ..fileio import check_writable
+    from ..fileio import check_writable, out_folder
     from ..physics.geometry import load_object
     from ..physics.helmholtz import predict as predict_object
 
     if sketch_path is not None and sketch_path.suffix.lower() not in (".png", ".svg", ".pdf"):
         raise InputError(str(sketch_path), "--sketch", "give a .png, .svg or .pdf file name")
-    for p in (out_path, sketch_path):
-        if p is not None:
-            check_writable(p, force=force)
+    out_path = sketch_in_out = None
+    if out_dir is not None:
+        out_path, sketch_in_out = out_folder(out_dir, ["prediction.json", "sketch.png"],
+                                             force=force)
+    if sketch_path is not None:
+        check_writable(sketch_path, force=force)
     obj = load_object(object_path)
     from ..physics.conditions import resolve_air
 
@@ -146,7 +149,11 @@ def predict(object_path: Path, temperature_c: float | None, relative_humidity: f
                                relative_humidity=relative_humidity, pressure_pa=pressure_pa,
                                co2_fraction=co2_fraction)
     pred = predict_object(obj, air)
+    from ..checks import check_geometry
+
+    warnings = check_geometry(obj, pred)
     doc = prediction_document(obj, air, sources, pred)
+    doc["flags"] = [f.to_dict() for f in warnings]
     if out_path is not None or as_json:
         from ..report.document import to_json, write_document
 
@@ -156,11 +163,16 @@ def predict(object_path: Path, temperature_c: float | None, relative_humidity: f
             click.echo(to_json(doc), nl=False)
     if not as_json:
         click.echo(prediction_text(obj, air, sources, pred))
-    if sketch_path is not None:
-        from ..physics.sketch import sketch_object
+        from ..report.text import flag_lines
 
-        sketch_object(obj, sketch_path, pred)
+        for line in flag_lines(warnings):
+            click.echo(line)
+    for sk in (sketch_in_out, sketch_path):
+        if sk is not None:
+            from ..physics.sketch import sketch_object
+
+            sketch_object(obj, sk, pred)
     if not as_json:
-        for p in (out_path, sketch_path):
+        for p in (out_path, sketch_in_out, sketch_path):
             if p is not None:
                 click.echo(f"wrote {p}")

@@ -9,7 +9,7 @@ import click
 from ._errors import handles_errors
 
 
-@click.command()
+@click.command(short_help="Check this installation on simulated recordings.")
 @click.option("--full", is_flag=True,
               help="The large run (400 resonators per method at 48 kHz, tables by regime; "
                    "about 8 minutes) instead of the compact one (about 20 s).")

@@ -10,7 +10,7 @@ import click
 from ._errors import handles_errors
 
 
-@click.command("series")
+@click.command("series", short_help="End correction from a trim or fill series.")
 @click.argument("manifest", metavar="MANIFEST.csv", type=click.Path(path_type=Path))
 @click.option("--vary", type=click.Choice(["neck-length", "volume"]), required=True,
               help="What changed between the points: the neck length (column neck_length, "

@@ -8,6 +8,7 @@ from typing import Any
 import click
 
 from ._errors import handles_errors
+from ._params import FREQUENCY
 
 
 def _pm(value: float, stderr: float, decimals: int = 2) -> str:
@@ -61,17 +62,21 @@ def _text(a: Any) -> str:
     return "\n".join(lines)
 
 
-@click.command("trim")
+@click.command("trim", short_help="How to cut, fill or drill to reach a target f0.")
 @click.argument("result_path", metavar="RESULT.json",
                 type=click.Path(path_type=Path))
-@click.option("--target", "target_hz", type=float, required=True,
-              help="Target f0 (Hz), at the measurement's air.")
+@click.option("--target", "target_hz", type=FREQUENCY, required=True,
+              help="Target f0 ('195 Hz'; a bare number is Hz), at the measurement's air.")
 @click.option("--object", "object_path", type=click.Path(path_type=Path),
               help="Object file (TOML) describing the geometry, if the result has none "
                    "(or to use another description).")
 @click.option("--json", "as_json", is_flag=True, help="Print the advice as JSON.")
+@click.option("--out", "out_dir", type=click.Path(file_okay=False, path_type=Path),
+              help="Write DIR/trim.json and DIR/trim.txt.")
+@click.option("--force", is_flag=True, help="Overwrite the files in --out.")
 @handles_errors
-def trim(result_path: Path, target_hz: float, object_path: Path | None, as_json: bool) -> None:
+def trim(result_path: Path, target_hz: float, object_path: Path | None, as_json: bool,
+         out_dir: Path | None, force: bool) -> None:
     """Say how to reach a target f0 from a fitted RESULT.json: cut the neck (with
     the end correction measured on this object), change the volume, or drill the bore.
 
@@ -79,15 +84,27 @@ def trim(result_path: Path, target_hz: float, object_path: Path | None, as_json:
     shortens a neck; when the target needs a longer one, the volume and bore routes
     are offered instead.
     """
+    from ..fileio import out_folder
     from ..physics.geometry import load_object
     from ..report.document import to_json
     from ..tuning import advise_trim, load_result
 
+    targets = [] if out_dir is None else out_folder(out_dir, ["trim.json", "trim.txt"],
+                                                     force=force)
     result = load_result(result_path)
     if object_path is not None:
         result = result.with_object(load_object(object_path))
     advice = advise_trim(result, target_hz)
+    text = _text(advice)
+    if targets:
+        from ..fileio import atomic_write_text
+        from ..report.document import write_document
+
+        write_document(targets[0], advice.to_dict())
+        atomic_write_text(targets[1], text + "\n")
     if as_json:
         click.echo(to_json(advice.to_dict()), nl=False)
     else:
-        click.echo(_text(advice))
+        click.echo(text)
+        if targets:
+            click.echo("wrote " + ", ".join(str(t) for t in targets))
