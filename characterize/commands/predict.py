@@ -50,6 +50,16 @@ def _mm(x: float | None) -> str:
     return "-" if x is None else f"{1e3 * x:.3f} mm"
 
 
+def _neck_profile_lines(neck: Any) -> list[str]:
+    if not neck.sections:
+        return []
+    parts = ", ".join(
+        f"{1e3 * d0:.2f}" + ("" if d0 == d1 else f"->{1e3 * d1:.2f}") + f" mm x {1e3 * ln:.2f} mm"
+        for d0, d1, ln in neck.sections)
+    return [f"            profile (outside in): {parts}; inner d = {_mm(neck.inner_diameter_m)}; "
+            f"mass length S∫dx/S(x) = {_mm(neck.mass_length_m)}"]
+
+
 def prediction_text(obj: Any, air: Any, sources: dict[str, str], pred: Any) -> str:
     """Human-readable report, units on every figure."""
     cav, neck = obj.cavity, obj.neck
@@ -57,7 +67,9 @@ def prediction_text(obj: Any, air: Any, sources: dict[str, str], pred: Any) -> s
              "pressure_pa": "pressure", "co2_fraction": "CO2"}
     src = ", ".join(f"{names.get(k, k)}: {v}" for k, v in sources.items() if v != "default")
     lines = [
-        f"{obj.name}: {obj.kind}" + (f", cavity {cav.shape}" if obj.kind == "helmholtz" else ""),
+        f"{obj.name}: {obj.kind}" + (f", cavity {cav.shape}" if obj.kind == "helmholtz" else (
+            ", closed-open" if neck.inner_end == "closed" else
+            f", open at both ends ({neck.outer_end} mouth, {neck.inner_end} far end)")),
         f"  air       {air.temperature_c:.2f} °C, RH {100 * air.relative_humidity:.1f} %, "
         f"{air.pressure_pa / 1e3:.3f} kPa, CO2 {1e6 * air.co2_fraction:.0f} ppm"
         + (f" (from {src})" if src else " (defaults)"),
@@ -68,6 +80,7 @@ def prediction_text(obj: Any, air: Any, sources: dict[str, str], pred: Any) -> s
         f"  neck      {neck.shape}, {neck.count} x d = {_mm(neck.diameter_m)}"
         + (f" ({_mm(neck.width_m)} x {_mm(neck.height_m)})" if neck.shape == "slot" else "")
         + f", L = {_mm(neck.length_m)}, S = {1e6 * pred.neck_area_m2:.3f} mm² total",
+        *_neck_profile_lines(neck),
         f"  ends      outer ({neck.outer_end}) {_mm(pred.outer_end_correction_m)}, inner "
         f"({neck.inner_end}) {_mm(pred.inner_end_correction_m)} "
         f"[Ingard 1953 form: {_mm(pred.inner_end_correction_alternative_m)}]",
@@ -96,17 +109,22 @@ def prediction_text(obj: Any, air: Any, sources: dict[str, str], pred: Any) -> s
                  else f" (1-D valid below {pred.mode_limit_hz:.0f} Hz)")
         lines.append(f"  modes     {modes}{limit}")
     lines += [
-        f"  Q         {pred.q_predicted:.2f} (viscous end term 0.5a..2a: "
-        f"{pred.q_predicted_range[1]:.1f} to {pred.q_predicted_range[0]:.1f}); "
+        f"  Q         {pred.q_predicted:.2f} with the end losses (range "
+        f"{pred.q_predicted_range[0]:.1f} to {pred.q_predicted_range[1]:.1f}: viscous end "
+        "term 2a .. no end losses); "
+        f"smooth walls {pred.q_smooth_wall:.2f}; end losses alone {pred.q_end_losses:.0f}; "
         f"without radiation {pred.q_without_radiation:.2f}",
-        f"            radiation {pred.q_radiation:.1f}, viscous neck {pred.q_viscous_neck:.1f}, "
-        f"viscous cavity {pred.q_viscous_cavity:.0f}, thermal cavity "
-        f"{pred.q_thermal_cavity:.1f}, thermal neck {pred.q_thermal_neck:.0f}",
+        "            lumped terms: " + ", ".join(
+            f"{name.replace('_', ' ')} {q:.4g}" for name, q, _ in pred.q_terms),
+        f"            end walls {1e4 * pred.end_wall_area_m2:.2f} cm² (thermal end term); "
+        f"viscous end term {_mm(pred.viscous_end_term_m)} per opening",
         f"  R, G      R_rad = {pred.radiation_resistance_pa_s_m3:.4g}, R_neck = "
         f"{pred.viscous_resistance_neck_pa_s_m3:.4g}, R_cavity = "
         f"{pred.viscous_resistance_cavity_pa_s_m3:.4g} Pa·s/m³; G_cavity = "
         f"{pred.thermal_conductance_cavity_m3_pa_s:.4g}, G_neck = "
         f"{pred.thermal_conductance_neck_m3_pa_s:.4g} m³/(Pa·s)",
+        "  sources   " + "; ".join(f"{name.replace('_', ' ')}: {src}"
+                                    for name, _, src in pred.q_terms),
         f"  mismatch  suggested f0 tolerance {100 * pred.f0_tolerance:.1f} %",
     ]
     lines += [f"  note      {n}" for n in pred.notes]

@@ -44,6 +44,8 @@ __all__ = [
     "Bore",
     "Resonance",
     "bessel_ratio",
+    "cone_equivalent_radius_m",
+    "cone_transfer_matrix",
     "duct_parameters",
     "mouth_impedance",
     "radiation_impedance",
@@ -72,6 +74,11 @@ class Duct:
     width_m : float
         Largest transverse size (diameter, or a rectangle's longer side), m;
         sets the first transverse mode.
+    end_area_m2 : float or None
+        Round ducts only: the cross-section at the far end (in the direction
+        of transfer, from the closed end towards the mouth) of a truncated
+        cone, m^2; None for a uniform duct. ``area_m2`` and ``perimeter_m``
+        are then those of the near end.
     """
 
     length_m: float
@@ -79,6 +86,7 @@ class Duct:
     perimeter_m: float
     circular: bool = True
     width_m: float = 0.0
+    end_area_m2: float | None = None
 
     @classmethod
     def round(cls, diameter_m: float, length_m: float) -> Duct:
@@ -89,10 +97,59 @@ class Duct:
         return cls(length_m, width_m * height_m, 2.0 * (width_m + height_m), False,
                    max(width_m, height_m))
 
+    @classmethod
+    def cone(cls, diameter_start_m: float, diameter_end_m: float, length_m: float) -> Duct:
+        """A truncated cone from ``diameter_start_m`` (near end) to ``diameter_end_m``."""
+        if abs(diameter_end_m - diameter_start_m) <= 1e-9 * diameter_start_m:
+            return cls.round(diameter_start_m, length_m)
+        return cls(length_m, math.pi * diameter_start_m**2 / 4.0, math.pi * diameter_start_m,
+                   True, max(diameter_start_m, diameter_end_m),
+                   math.pi * diameter_end_m**2 / 4.0)
+
+    @classmethod
+    def ellipse(cls, semi_axis_a_m: float, semi_axis_b_m: float, length_m: float) -> Duct:
+        """An elliptic duct (wide-duct boundary layers with the exact perimeter,
+        :func:`~characterize.physics.geometry.ellipse_perimeter_m`)."""
+        from .geometry import ellipse_perimeter_m
+
+        return cls(length_m, math.pi * semi_axis_a_m * semi_axis_b_m,
+                   ellipse_perimeter_m(semi_axis_a_m, semi_axis_b_m), False,
+                   2.0 * max(semi_axis_a_m, semi_axis_b_m))
+
     @property
     def radius_m(self) -> float:
-        """Equal-area radius, m."""
+        """Equal-area radius (of the near end for a cone), m."""
         return math.sqrt(self.area_m2 / math.pi)
+
+    @property
+    def is_cone(self) -> bool:
+        return self.end_area_m2 is not None
+
+    @property
+    def far_area_m2(self) -> float:
+        """Cross-section at the far end, m^2."""
+        return self.area_m2 if self.end_area_m2 is None else self.end_area_m2
+
+    @property
+    def volume_m3(self) -> float:
+        """Air volume, m^3 (a truncated cone: L (S0 + sqrt(S0 S1) + S1)/3)."""
+        s0, s1 = self.area_m2, self.far_area_m2
+        return self.length_m * (s0 + math.sqrt(s0 * s1) + s1) / 3.0
+
+    @property
+    def wall_area_m2(self) -> float:
+        """Side wall area, m^2 (a cone's lateral surface pi (r0 + r1) slant)."""
+        if self.end_area_m2 is None:
+            return self.perimeter_m * self.length_m
+        r0, r1 = self.radius_m, math.sqrt(self.end_area_m2 / math.pi)
+        return math.pi * (r0 + r1) * math.hypot(self.length_m, r1 - r0)
+
+    def reversed(self) -> Duct:
+        """The same duct with the transfer direction reversed."""
+        if self.end_area_m2 is None:
+            return self
+        d0, d1 = 2.0 * self.radius_m, 2.0 * math.sqrt(self.end_area_m2 / math.pi)
+        return Duct.cone(d1, d0, self.length_m)
 
 
 @dataclass(frozen=True, slots=True)
@@ -125,6 +182,18 @@ class Bore:
         face around the openings), m^2; empty: none.
     viscous_end_length_m : float
         Extra wall length per opening for the viscous end term, m.
+    neck_inner : tuple of Duct
+        Further neck sections between the cavity and ``neck`` (a neck given
+        as a profile), from the cavity outwards; ``neck`` is then the
+        outermost section (the mouth). Each carries 1/count of the flow.
+    neck_junction_corrections_m : tuple of float
+        Step end correction between neck section i and i+1 (``neck`` last),
+        referred to the smaller area, m (0 where the sections join).
+    far_end : str
+        ``"closed"`` (default), or for a tube without a cavity ``"flanged"``
+        or ``"unflanged"``: an open far end with its own radiation load.
+    far_correction_m : float
+        End correction of an open far end, m.
     """
 
     cavity: tuple[Duct, ...]
@@ -137,13 +206,22 @@ class Bore:
     closed_end_area_m2: float = 0.0
     step_wall_areas_m2: tuple[float, ...] = ()
     viscous_end_length_m: float = 0.0
+    neck_inner: tuple[Duct, ...] = ()
+    neck_junction_corrections_m: tuple[float, ...] = ()
+    far_end: str = "closed"
+    far_correction_m: float = 0.0
 
     @property
     def volume_m3(self) -> float:
         """Cavity volume (or the tube's), m^3."""
         if not self.cavity:
-            return self.neck.area_m2 * self.neck.length_m
-        return sum(d.area_m2 * d.length_m for d in self.cavity)
+            return sum(d.volume_m3 for d in (*self.neck_inner, self.neck))
+        return sum(d.volume_m3 for d in self.cavity)
+
+    @property
+    def neck_ducts(self) -> tuple[Duct, ...]:
+        """All neck sections from the cavity outwards (the mouth last)."""
+        return (*self.neck_inner, self.neck)
 
 
 @dataclass(frozen=True, slots=True)
@@ -282,19 +360,132 @@ def _wall_admittance(area_m2: float, omega: NDArray[np.complex128], air: AirStat
 def _through(duct: Duct, y_far: NDArray[np.complex128], omega: NDArray[np.complex128],
              air: AirState, lossless: bool) -> NDArray[np.complex128]:
     """Admittance at the near end of a duct loaded by ``y_far`` at its far end."""
+    if duct.is_cone:
+        return _through_cone(duct, y_far, omega, air, lossless)
     g, zc, _ = duct_parameters(duct, omega, air, lossless)
     t = np.tanh(g * duct.length_m)
     yc = 1.0 / zc
     return yc * (y_far + yc * t) / (yc + y_far * t)
 
 
+def cone_equivalent_radius_m(radius_start_m: float, radius_end_m: float) -> float:
+    r"""Radius of the cylinder whose boundary-layer losses stand in for a cone's.
+
+    .. math::
+
+        R_\text{eq} = \frac{R_\max - R_\min}{\ln(R_\max/R_\min)}
+
+    the logarithmic mean, for which :math:`\int_0^\ell dx/R(x) = \ell/R_\text{eq}`
+    along the cone: the wide-duct losses per unit length go as :math:`1/R`.
+
+    References
+    ----------
+    A. Chaigne, J. Kergomard, *Acoustics of Musical Instruments* (Springer,
+    2016), ch. 7 (eq. 7.106, as cited in openwind's documentation; the same
+    choice is openwind's default for its transfer-matrix cones).
+    """
+    lo, hi = sorted((radius_start_m, radius_end_m))
+    if hi - lo <= 1e-12 * hi:
+        return hi
+    return (hi - lo) / math.log(hi / lo)
+
+
+def cone_transfer_matrix(duct: Duct, omega: NDArray[np.complex128], air: AirState,
+                         lossless: bool = False
+                         ) -> tuple[NDArray[np.complex128], NDArray[np.complex128],
+                                    NDArray[np.complex128], NDArray[np.complex128]]:
+    r"""Transfer matrix of a truncated cone with visco-thermal losses.
+
+    Plane-front spherical waves :math:`p = [A\cosh\Gamma(x - x_2) +
+    B\sinh\Gamma(x - x_2)]/x` (x from the apex, :math:`S \propto x^2`) with
+    :math:`\partial p/\partial x = -\Gamma Z_c(x)\,U` give, from the near
+    end (1) to the far end (2), :math:`\ell = x_2 - x_1`,
+
+    .. math::
+
+        p_1 = \frac{x_2}{x_1}\Bigl(\cosh\Gamma\ell - \frac{\sinh\Gamma\ell}{\Gamma x_2}\Bigr)p_2
+              + \frac{x_2}{x_1} Z_{c2}\sinh\Gamma\ell\;U_2,\qquad
+        U_1 = \frac{p_1/x_1 - (\Gamma/x_1)(B\cosh\Gamma\ell - x_2 p_2\sinh\Gamma\ell)}
+                   {\Gamma Z_{c1}}
+
+    with :math:`B = p_2/\Gamma - x_2 Z_{c2} U_2`. The losses are those of a
+    cylinder of the logarithmic-mean radius (:func:`cone_equivalent_radius_m`,
+    Zwikker-Kosten with Bessel functions), :math:`Z_c \propto 1/S` along the
+    cone. Lossless, this is the classical cone matrix.
+
+    Parameters
+    ----------
+    duct : Duct
+        A cone (``end_area_m2`` set).
+    omega : ndarray of complex
+        Angular frequency, rad/s.
+    air : AirState
+    lossless : bool
+
+    Returns
+    -------
+    a, b, c, d : ndarray of complex
+        :math:`(p_1, U_1) = [[a, b], [c, d]]\,(p_2, U_2)`; the determinant is 1.
+
+    References
+    ----------
+    A. Chaigne, J. Kergomard, *Acoustics of Musical Instruments* (Springer,
+    2016), section 7.5, eq. 7.83 (the cone matrix; equation number as cited in
+    openwind's documentation); A. Ernoult, J. Kergomard, "Transfer matrix of a
+    truncated cone with viscothermal losses: application of the WKB method",
+    Acta Acustica 4(2), 7 (2020); D. Mapes-Riordan, "Horn modeling with
+    conical and cylindrical transmission-line elements", J. Audio Eng. Soc.
+    41(6), 471-484 (1993) (from memory).
+    """
+    w = np.asarray(omega, dtype=np.complex128)
+    r1 = duct.radius_m
+    r2 = math.sqrt(duct.far_area_m2 / math.pi)
+    length = duct.length_m
+    x1 = r1 * length / (r2 - r1)  # signed distance of the near end from the apex
+    x2 = x1 + length
+    req = cone_equivalent_radius_m(r1, r2)
+    eq = Duct.round(2.0 * req, length)
+    g, zc_eq, _ = duct_parameters(eq, w, air, lossless)
+    zc1 = zc_eq * eq.area_m2 / duct.area_m2
+    zc2 = zc_eq * eq.area_m2 / duct.far_area_m2
+    ch, sh = np.cosh(g * length), np.sinh(g * length)
+    a = (x2 / x1) * (ch - sh / (g * x2))
+    b = (x2 / x1) * zc2 * sh
+    # U1 for (p2, U2) = (1, 0) and (0, 1), from the general solution
+    # B = p2/G - x2 Zc2 U2, A = x2 p2:
+    c = (a / x1 - (g / x1) * (ch / g - x2 * sh)) / (g * zc1)
+    d = (b / x1 - (g / x1) * (-x2 * zc2 * ch)) / (g * zc1)
+    return a, b, c, d
+
+
+def _through_cone(duct: Duct, y_far: NDArray[np.complex128], omega: NDArray[np.complex128],
+                  air: AirState, lossless: bool) -> NDArray[np.complex128]:
+    # the bore is followed from the closed end (the load, the duct's start)
+    # towards the mouth: the matrix runs from the input (the duct's far end)
+    # to the load
+    a, b, c, d = cone_transfer_matrix(duct.reversed(), omega, air, lossless)
+    return (c + d * y_far) / (a + b * y_far)
+
+
+def _end_radiation(area_m2: float, correction_m: float, baffle: str, flow_count: int,
+                   omega: NDArray[np.complex128], air: AirState,
+                   lossless: bool) -> NDArray[np.complex128]:
+    """Radiation load of one opening (see :func:`radiation_impedance`)."""
+    rho, c = air.density_kg_m3, air.speed_of_sound_m_s
+    mass = 1j * omega * rho * correction_m / area_m2
+    if lossless:
+        return mass
+    return flow_count * monopole_gain(baffle) * rho * omega * omega / (4.0 * np.pi * c) + mass
+
+
 def mouth_impedance(bore: Bore, omega: NDArray[np.complex128], air: AirState,
                     lossless: bool = False) -> NDArray[np.complex128]:
     """Impedance looking into ONE opening from outside, without its radiation
-    load (Pa s/m^3), by admittance transfer from the closed end up."""
+    load (Pa s/m^3), by admittance transfer from the closed (or far open) end up."""
     w = np.asarray(omega, dtype=np.complex128)
     rho = air.density_kg_m3
     y = np.zeros_like(w)
+    inner_neck = bore.neck_ducts[0]
     if bore.cavity:
         y = y + _wall_admittance(bore.closed_end_area_m2, w, air, lossless)
         n = len(bore.cavity)
@@ -303,20 +494,35 @@ def mouth_impedance(bore: Bore, omega: NDArray[np.complex128], air: AirState,
             if bore.step_wall_areas_m2:
                 y = y + _wall_admittance(bore.step_wall_areas_m2[i], w, air, lossless)
             if i + 1 < n:
-                small = min(duct.area_m2, bore.cavity[i + 1].area_m2)
+                small = min(duct.far_area_m2, bore.cavity[i + 1].area_m2)
                 dm = bore.junction_corrections_m[i] if bore.junction_corrections_m else 0.0
-                y = 1.0 / (1.0 / y + 1j * w * rho * dm / small)
+                if dm:
+                    y = 1.0 / (1.0 / y + 1j * w * rho * dm / small)
         z = bore.count / y  # one opening carries 1/count of the flow
-        z = z + 1j * w * rho * bore.inner_correction_m / bore.neck.area_m2
+        z = z + 1j * w * rho * bore.inner_correction_m / inner_neck.area_m2
+    elif bore.far_end != "closed":
+        z = _end_radiation(inner_neck.area_m2, bore.far_correction_m, bore.far_end, 1, w, air,
+                           lossless)
     else:
-        y = y + _wall_admittance(bore.closed_end_area_m2 or bore.neck.area_m2, w, air, lossless)
+        y = y + _wall_admittance(bore.closed_end_area_m2 or inner_neck.area_m2, w, air,
+                                 lossless)
         z = 1.0 / y if np.all(y != 0) else np.full_like(w, np.inf)
     if bore.viscous_end_length_m > 0 and not lossless:
-        _, _, zs = duct_parameters(bore.neck, w, air, lossless)
-        z = z + (zs - 1j * w * rho / bore.neck.area_m2) * bore.viscous_end_length_m
+        ref = (Duct.round(2.0 * inner_neck.radius_m, 1.0) if inner_neck.is_cone
+               else inner_neck)
+        _, _, zs = duct_parameters(ref, w, air, lossless)
+        z = z + (zs - 1j * w * rho / inner_neck.area_m2) * bore.viscous_end_length_m
     with np.errstate(divide="ignore", invalid="ignore"):
         y1 = np.where(np.isinf(z), 0.0, 1.0 / z)
-    y1 = _through(bore.neck, y1, w, air, lossless)
+    ducts = bore.neck_ducts
+    for i, duct in enumerate(ducts):
+        y1 = _through(duct, y1, w, air, lossless)
+        if i + 1 < len(ducts):
+            dm = (bore.neck_junction_corrections_m[i] if bore.neck_junction_corrections_m
+                  else 0.0)
+            if dm:
+                small = min(duct.far_area_m2, ducts[i + 1].area_m2)
+                y1 = 1.0 / (1.0 / y1 + 1j * w * rho * dm / small)
     return 1.0 / y1
 
 
@@ -339,11 +545,8 @@ def radiation_impedance(bore: Bore, omega: NDArray[np.complex128], air: AirState
     et al., *Fundamentals of Acoustics*, 4th ed. (2000), section 7.5 (from memory).
     """
     w = np.asarray(omega, dtype=np.complex128)
-    rho, c = air.density_kg_m3, air.speed_of_sound_m_s
-    mass = 1j * w * rho * bore.outer_correction_m / bore.neck.area_m2
-    if lossless:
-        return mass
-    return bore.count * monopole_gain(bore.baffle) * rho * w * w / (4.0 * np.pi * c) + mass
+    return _end_radiation(bore.neck.far_area_m2, bore.outer_correction_m, bore.baffle,
+                          bore.count, w, air, lossless)
 
 
 def characteristic_function(bore: Bore, omega: NDArray[np.complex128], air: AirState,
@@ -395,7 +598,7 @@ def transverse_cutoff_hz(bore: Bore, air: AirState) -> float:
     """
     c = air.speed_of_sound_m_s
     best = math.inf
-    for duct in (*bore.cavity, bore.neck):
+    for duct in (*bore.cavity, *bore.neck_ducts):
         f = 1.8412 * c / (math.pi * duct.width_m) if duct.circular else c / (2.0 * duct.width_m)
         best = min(best, f)
     return best

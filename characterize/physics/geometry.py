@@ -107,6 +107,74 @@ MAX_CO2_FRACTION = 0.01
 
 
 # --------------------------------------------------------------------------
+# Shapes' measures
+# --------------------------------------------------------------------------
+
+
+def ellipse_perimeter_m(semi_axis_a_m: float, semi_axis_b_m: float) -> float:
+    r"""Perimeter of an ellipse, exact.
+
+    .. math::
+
+        P = 4a\,E(m),\qquad m = 1 - b^2/a^2,\ a \ge b
+
+    with E the complete elliptic integral of the second kind
+    (``scipy.special.ellipe``, parameter convention m = k^2).
+
+    References
+    ----------
+    NIST Digital Library of Mathematical Functions, section 19.9(ii)
+    (arc length of an ellipse; from memory); checked in the tests against
+    Ramanujan's second approximation and the circle.
+    """
+    from scipy.special import ellipe
+
+    a, b = max(semi_axis_a_m, semi_axis_b_m), min(semi_axis_a_m, semi_axis_b_m)
+    return 4.0 * a * float(ellipe(1.0 - (b / a) ** 2))
+
+
+def ellipsoid_surface_area_m2(a_m: float, b_m: float, c_m: float) -> float:
+    r"""Surface area of an ellipsoid with semi-axes a, b, c, exact.
+
+    .. math::
+
+        A = 4\pi abc\,R_G(a^{-2}, b^{-2}, c^{-2})
+
+    with :math:`R_G` Carlson's symmetric elliptic integral of the second kind
+    (``scipy.special.elliprg``); a sphere gives :math:`4\pi r^2`.
+
+    References
+    ----------
+    NIST Digital Library of Mathematical Functions, eq. 19.33.1 (surface
+    area of an ellipsoid in Carlson's form; equation number from memory);
+    B. C. Carlson, "Numerical computation of real or complex elliptic
+    integrals", Numer. Algorithms 10, 13-26 (1995). Checked in the tests
+    against the spheroids' closed forms and Thomsen's approximation
+    (within 1.061 %).
+    """
+    from scipy.special import elliprg
+
+    return 4.0 * math.pi * a_m * b_m * c_m * float(
+        elliprg(a_m**-2, b_m**-2, c_m**-2))
+
+
+def section_parts(section: tuple[float, ...]) -> tuple[float, float, float]:
+    """A profile section as (diameter at its start, diameter at its end, length), m:
+    ``(d, L)`` is a cylinder, ``(d0, d1, L)`` a truncated cone."""
+    if len(section) == 2:
+        return (section[0], section[0], section[1])
+    return (section[0], section[1], section[2])
+
+
+def _frustum_volume_m3(d0: float, d1: float, length: float) -> float:
+    return math.pi * length * (d0 * d0 + d0 * d1 + d1 * d1) / 12.0
+
+
+def _frustum_side_m2(d0: float, d1: float, length: float) -> float:
+    return math.pi * (d0 + d1) / 2.0 * math.hypot(length, (d1 - d0) / 2.0)
+
+
+# --------------------------------------------------------------------------
 # Dataclasses
 # --------------------------------------------------------------------------
 
@@ -129,8 +197,12 @@ class Cavity:
     width_m, depth_m, height_m : float or None
         Box dimensions, m; the neck sits on the width x depth face and the
         height runs along its axis.
-    sections : tuple of (diameter_m, length_m)
-        Profile sections from the bottom up, m.
+    sections : tuple of (diameter_m, length_m) or (diameter_m, diameter_m, length_m)
+        Profile sections from the bottom up, m: a cylinder, or a truncated
+        cone from its lower to its upper diameter (:func:`section_parts`).
+    semi_axes_m : tuple of float
+        Ellipsoid (a, b, c; c along the neck's axis, the neck on its pole)
+        or elliptic cylinder (a, b, across the axis), m.
     volume_source : str
         ``"given"``, ``"water"`` or ``"shape"``.
     water_mass_kg, water_temperature_c : float or None
@@ -144,7 +216,8 @@ class Cavity:
     width_m: float | None = None
     depth_m: float | None = None
     height_m: float | None = None
-    sections: tuple[tuple[float, float], ...] = ()
+    sections: tuple[tuple[float, ...], ...] = ()
+    semi_axes_m: tuple[float, ...] = ()
     volume_source: str = "given"
     water_mass_kg: float | None = None
     water_temperature_c: float | None = None
@@ -162,7 +235,14 @@ class Cavity:
             assert self.width_m and self.depth_m and self.height_m
             return self.width_m * self.depth_m * self.height_m
         if self.shape == "profile":
-            return sum(math.pi * d * d / 4.0 * ln for d, ln in self.sections)
+            return sum(_frustum_volume_m3(*section_parts(sec)) for sec in self.sections)
+        if self.shape == "ellipsoid":
+            a, b, c = self.semi_axes_m
+            return 4.0 / 3.0 * math.pi * a * b * c
+        if self.shape == "elliptic-cylinder":
+            a, b = self.semi_axes_m
+            assert self.length_m is not None
+            return math.pi * a * b * self.length_m
         return None
 
     @property
@@ -177,12 +257,14 @@ class Cavity:
         """Depth of the cavity along the neck's axis, m (None for volume only)."""
         if self.shape == "sphere":
             return self.diameter_m
-        if self.shape in ("cylinder", "tube"):
+        if self.shape in ("cylinder", "tube", "elliptic-cylinder"):
             return self.length_m
         if self.shape == "box":
             return self.height_m
         if self.shape == "profile":
-            return sum(ln for _, ln in self.sections)
+            return sum(section_parts(sec)[2] for sec in self.sections)
+        if self.shape == "ellipsoid":
+            return 2.0 * self.semi_axes_m[2]
         return None
 
     @property
@@ -197,7 +279,9 @@ class Cavity:
             assert self.width_m and self.depth_m
             return self.width_m * self.depth_m * s
         if self.shape == "profile":
-            return math.pi * self.sections[-1][0] ** 2 / 4.0 * s
+            return math.pi * section_parts(self.sections[-1])[1] ** 2 / 4.0 * s
+        if self.shape in ("ellipsoid", "elliptic-cylinder"):
+            return math.pi * self.semi_axes_m[0] * self.semi_axes_m[1] * s
         return None
 
     @property
@@ -211,8 +295,10 @@ class Cavity:
             assert self.width_m and self.depth_m
             return (self.width_m * s, self.depth_m * s)
         if self.shape == "profile":
-            d = self.sections[-1][0] * s
+            d = section_parts(self.sections[-1])[1] * s
             return (d, d)
+        if self.shape in ("ellipsoid", "elliptic-cylinder"):
+            return (2.0 * self.semi_axes_m[0] * s, 2.0 * self.semi_axes_m[1] * s)
         return None
 
     @property
@@ -237,13 +323,23 @@ class Cavity:
             h = self.height_m
             return 2.0 * (w * d + w * h + d * h)
         if self.shape == "profile":
-            radii = [d / 2.0 * math.sqrt(s) for d, _ in self.sections]
-            side = sum(2.0 * math.pi * r * ln
-                       for r, (_, ln) in zip(radii, self.sections, strict=True))
-            ends = math.pi * radii[0] ** 2 + math.pi * radii[-1] ** 2
-            steps = sum(abs(math.pi * (r1 * r1 - r0 * r0))
-                        for r0, r1 in zip(radii, radii[1:], strict=False))
+            lin = math.sqrt(s)
+            parts = [(d0 * lin, d1 * lin, ln)
+                     for d0, d1, ln in (section_parts(sec) for sec in self.sections)]
+            side = sum(_frustum_side_m2(*p) for p in parts)
+            ends = math.pi * (parts[0][0] ** 2 + parts[-1][1] ** 2) / 4.0
+            steps = sum(abs(math.pi * (q[0] ** 2 - p[1] ** 2) / 4.0)
+                        for p, q in zip(parts, parts[1:], strict=False))
             return side + ends + steps
+        if self.shape == "ellipsoid":
+            lin = math.sqrt(s)
+            a, b, c = self.semi_axes_m
+            return ellipsoid_surface_area_m2(a * lin, b * lin, c)
+        if self.shape == "elliptic-cylinder":
+            lin = math.sqrt(s)
+            a, b = (x * lin for x in self.semi_axes_m)
+            assert self.length_m is not None
+            return ellipse_perimeter_m(a, b) * self.length_m + 2.0 * math.pi * a * b
         r = (self.volume_m3 / (2.0 * math.pi)) ** (1.0 / 3.0)
         return 6.0 * math.pi * r * r
 
@@ -261,7 +357,9 @@ class Cavity:
             if value is not None:
                 d[key] = float(value)
         if self.sections:
-            d["sections_m"] = [[float(a), float(b)] for a, b in self.sections]
+            d["sections_m"] = [[float(x) for x in sec] for sec in self.sections]
+        if self.semi_axes_m:
+            d["semi_axes_m"] = [float(x) for x in self.semi_axes_m]
         if self.shape_volume_m3 is not None:
             d["shape_volume_m3"] = float(self.shape_volume_m3)
         return d
@@ -285,13 +383,18 @@ class Neck:
         Condition where the neck meets the cavity, one of
         :data:`END_CONDITIONS` (``"closed"`` for the closed end of a tube).
     shape : str
-        ``"round"``, ``"slot"`` or ``"hole"``.
+        ``"round"``, ``"slot"``, ``"hole"`` or ``"profile"``.
     width_m, height_m : float or None
         Slot width and height, m.
     count : int
         Number of identical openings.
     outer_end_correction_m, inner_end_correction_m : float or None
         Explicit end corrections, m, replacing the formulas.
+    sections : tuple of (diameter_m, diameter_m, length_m)
+        A neck given as a profile: round sections from the OUTSIDE end
+        inwards, each from its outer to its inner diameter (equal for a
+        cylinder, different for a truncated cone). ``diameter_m`` is then the
+        mouth's diameter and ``length_m`` the total length.
     """
 
     diameter_m: float
@@ -304,11 +407,68 @@ class Neck:
     count: int = 1
     outer_end_correction_m: float | None = None
     inner_end_correction_m: float | None = None
+    sections: tuple[tuple[float, float, float], ...] = ()
 
     @property
     def radius_m(self) -> float:
-        """Radius of one opening (equal-area radius for a slot), m."""
+        """Radius of one opening (equal-area radius for a slot; the mouth's for
+        a profile), m."""
         return self.diameter_m / 2.0
+
+    @property
+    def inner_diameter_m(self) -> float:
+        """Diameter where the neck meets the cavity, m (``diameter_m`` unless
+        a profile)."""
+        return self.sections[-1][1] if self.sections else self.diameter_m
+
+    @property
+    def inner_area_m2(self) -> float:
+        """Cross-section of one opening where it meets the cavity, m^2."""
+        if self.sections:
+            return math.pi * self.inner_diameter_m**2 / 4.0
+        return self.opening_area_m2
+
+    @property
+    def mass_length_m(self) -> float:
+        r"""Length of neck referred to the mouth's area that has the neck's
+        acoustic mass (end corrections not included), m:
+
+        .. math::
+
+            \ell_M = S_\text{mouth}\int_0^L\frac{dx}{S(x)},\qquad
+            \int_\text{cone}\frac{dx}{S} = \frac{\ell}{\pi r_0 r_1}
+
+        (the physical length for a uniform neck).
+
+        References
+        ----------
+        Lord Rayleigh, *The Theory of Sound*, vol. II (1896), sections
+        306-308 (the conductivity of a channel of varying section, whose
+        reciprocal is this integral for a slowly varying one; from memory).
+        """
+        if not self.sections:
+            return self.length_m
+        s0 = self.opening_area_m2
+        return s0 * sum(ln / (math.pi * d0 * d1 / 4.0) for d0, d1, ln in self.sections)
+
+    @property
+    def wall_area_m2(self) -> float:
+        """Side wall of one opening, m^2."""
+        if self.sections:
+            return sum(_frustum_side_m2(*sec) for sec in self.sections)
+        return self.perimeter_m * self.length_m
+
+    @property
+    def viscous_length_m(self) -> float:
+        r"""Length of a uniform neck of the mouth's radius with the same
+        wide-duct viscous resistance, m:
+        :math:`a^3\int dx/r^3`, :math:`\int_\text{cone} dx/r^3 = \ell(r_0 + r_1)/(2r_0^2r_1^2)`
+        (Keefe 1984 wide-tube resistance per length, integrated)."""
+        if not self.sections:
+            return self.length_m
+        a = self.radius_m
+        return a**3 * sum(ln * (d0 + d1) / 2.0 / (2.0 * (d0 / 2.0) ** 2 * (d1 / 2.0) ** 2)
+                          for d0, d1, ln in self.sections)
 
     @property
     def opening_area_m2(self) -> float:
@@ -355,6 +515,10 @@ class Neck:
             value = getattr(self, key)
             if value is not None:
                 d[key] = float(value)
+        if self.sections:
+            d["sections_m"] = [[float(x) for x in sec] for sec in self.sections]
+            d["inner_diameter_m"] = float(self.inner_diameter_m)
+            d["mass_length_m"] = float(self.mass_length_m)
         return d
 
 

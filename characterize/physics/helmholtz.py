@@ -19,7 +19,7 @@ from dataclasses import asdict, dataclass, field
 from typing import Any
 
 from .air import AirState
-from .geometry import ResonatorObject
+from .geometry import ResonatorObject, section_parts
 from .losses import (
     VISCOUS_END_TERM_OVER_RADIUS,
     VISCOUS_END_TERM_RANGE_OVER_RADIUS,
@@ -89,7 +89,8 @@ MAX_MODES = 5
 #: Volume only: the cavity's own inertia and the inner correction's reduction
 #: are unknown (up to about 3 % for squat or narrow cavities) -> 3.5 %.
 F0_TOLERANCE_BY_MODEL = {"distributed": 0.02, "tube-distributed": 0.02,
-                         "sphere-midpoint": 0.025, "corrected-lumped": 0.035}
+                         "sphere-midpoint": 0.025, "corrected-lumped": 0.035,
+                         "volume-shape-range": 0.035}
 
 
 @dataclass(frozen=True, slots=True)
@@ -141,7 +142,10 @@ def neck_end_corrections(obj: ResonatorObject) -> EndCorrections:
     - Slots: the round value for the equal-area radius times the ratio of
       Rayleigh's mass integrals, rectangle over circle (own approximation;
       exact for flanged ends with uniform velocity).
-    - Tubes: no inner end (closed).
+    - Necks given as a profile: the outer end from the mouth's radius, the
+      inner end from the innermost section's radius (each in its own area).
+    - Tubes: no inner end when closed; an open far end (open-open tube) is
+      an outer end of its kind (flanged or unflanged).
 
     Parameters
     ----------
@@ -160,6 +164,7 @@ def neck_end_corrections(obj: ResonatorObject) -> EndCorrections:
     """
     neck, cav = obj.neck, obj.cavity
     a = neck.radius_m
+    a_in = neck.inner_diameter_m / 2.0
     if neck.shape == "slot":
         assert neck.width_m is not None and neck.height_m is not None
         factor = flanged_rectangle_end_correction_m(neck.width_m, neck.height_m) / (
@@ -173,22 +178,28 @@ def neck_end_corrections(obj: ResonatorObject) -> EndCorrections:
         outer_src = ("Levine & Schwinger 1948" if neck.outer_end == "unflanged"
                      else "Norris & Sheng 1989")
     side = cav.neck_side_area_m2
-    xi = None if side is None or obj.kind == "tube" else math.sqrt(neck.area_m2 / side)
-    if obj.kind == "tube":
+    xi = (None if side is None or obj.kind == "tube"
+          else math.sqrt(neck.count * neck.inner_area_m2 / side))
+    if obj.kind == "tube" and neck.inner_end == "closed":
         inner, inner_src, alt = 0.0, "closed end", 0.0
     elif neck.inner_end_correction_m is not None:
         inner, inner_src = neck.inner_end_correction_m, "explicit"
         alt = inner
+    elif obj.kind == "tube":
+        inner = end_correction_m(a_in, neck.inner_end)
+        inner_src = ("Levine & Schwinger 1948" if neck.inner_end == "unflanged"
+                     else "Norris & Sheng 1989")
+        alt = inner
     elif neck.inner_end == "unflanged":
-        inner, inner_src = factor * end_correction_m(a, "unflanged"), "Levine & Schwinger 1948"
+        inner, inner_src = factor * end_correction_m(a_in, "unflanged"), "Levine & Schwinger 1948"
         alt = inner
     elif xi is None:
-        inner, inner_src = factor * step_end_correction_m(a, 0.0), "Kergomard & Garcia 1987"
-        alt = factor * ingard_inner_end_correction_m(a, 0.0)
+        inner, inner_src = factor * step_end_correction_m(a_in, 0.0), "Kergomard & Garcia 1987"
+        alt = factor * ingard_inner_end_correction_m(a_in, 0.0)
     else:
-        inner = factor * step_end_correction_m(a, min(xi, 1.0))
+        inner = factor * step_end_correction_m(a_in, min(xi, 1.0))
         inner_src = "Kergomard & Garcia 1987"
-        alt = factor * ingard_inner_end_correction_m(a, xi)
+        alt = factor * ingard_inner_end_correction_m(a_in, min(xi, 1.0))
     return EndCorrections(outer, inner, alt, factor, xi, outer_src, inner_src)
 
 
@@ -331,57 +342,105 @@ def bore_from_object(obj: ResonatorObject, *, end_losses: bool = True,
 
     neck, cav = obj.neck, obj.cavity
     ends = neck_end_corrections(obj)
-    if neck.shape == "slot":
-        assert neck.width_m is not None and neck.height_m is not None
-        neck_duct = Duct.rectangle(neck.width_m, neck.height_m, neck.length_m)
-    else:
-        neck_duct = Duct.round(neck.diameter_m, neck.length_m)
-    end_len = viscous_end_term_over_radius * neck.radius_m
+    necks = _neck_ducts(obj)
+    neck_junctions = _junctions(necks)
+    end_len = viscous_end_term_over_radius * neck.inner_diameter_m / 2.0
     if obj.kind == "tube":
-        return Bore((), neck_duct, 1, (), 0.0, ends.outer_m, neck.outer_end,
-                    neck_duct.area_m2 if end_losses else 0.0, (), end_len / 2.0)
+        if neck.inner_end == "closed":
+            return Bore((), necks[-1], 1, (), 0.0, ends.outer_m, neck.outer_end,
+                        necks[0].area_m2 if end_losses else 0.0, (), end_len / 2.0,
+                        tuple(necks[:-1]), neck_junctions)
+        return Bore((), necks[-1], 1, (), 0.0, ends.outer_m, neck.outer_end, 0.0, (),
+                    end_len / 2.0, tuple(necks[:-1]), neck_junctions, neck.inner_end,
+                    ends.inner_m)
     s_scale = cav.area_scale
     lin = math.sqrt(s_scale)
     inner = ends.inner_m
+    tapered = cav.shape in ("sphere", "ellipsoid")
     if cav.shape == "cylinder":
         assert cav.diameter_m is not None and cav.length_m is not None
         ducts: list[Any] = [Duct.round(cav.diameter_m * lin, cav.length_m)]
     elif cav.shape == "box":
         assert cav.width_m and cav.depth_m and cav.height_m
         ducts = [Duct.rectangle(cav.width_m * lin, cav.depth_m * lin, cav.height_m)]
+    elif cav.shape == "elliptic-cylinder":
+        assert cav.length_m is not None
+        ducts = [Duct.ellipse(cav.semi_axes_m[0] * lin, cav.semi_axes_m[1] * lin,
+                              cav.length_m)]
     elif cav.shape == "profile":
-        ducts = [Duct.round(d * lin, ln) for d, ln in cav.sections]
-    elif cav.shape == "sphere":
-        assert cav.diameter_m is not None
-        r = cav.diameter_m / 2.0 * lin
-        a_cut = min(math.sqrt(neck.area_m2 / math.pi), 0.999 * r)
-        z_top = r + math.sqrt(r * r - a_cut * a_cut)
-        # slices uniform in polar angle (finer near the poles, where the section changes fast)
-        theta_top = math.acos((r - z_top) / r)  # polar angle from the bottom pole
-        edges = [r - r * math.cos(theta_top * i / sphere_slices)
-                 for i in range(sphere_slices + 1)]
-        ducts = []
-        for z0, z1 in zip(edges, edges[1:], strict=False):
-            h = z1 - z0
-            vol = math.pi * (r * r * h - ((z1 - r) ** 3 - (z0 - r) ** 3) / 3.0)
-            ducts.append(Duct.round(2.0 * math.sqrt(vol / h / math.pi), h))
+        ducts = [Duct.cone(d0 * lin, d1 * lin, ln)
+                 for d0, d1, ln in (section_parts(sec) for sec in cav.sections)]
+    elif tapered:
+        if cav.shape == "sphere":
+            assert cav.diameter_m is not None
+            ax = ay = cav.diameter_m / 2.0 * lin
+            cz = cav.diameter_m / 2.0
+        else:
+            ax, ay = cav.semi_axes_m[0] * lin, cav.semi_axes_m[1] * lin
+            cz = cav.semi_axes_m[2]
+        ducts = _spheroid_slices(ax, ay, cz, neck.count * neck.inner_area_m2, sphere_slices)
         inner = 0.0
     else:
         return None
-    areas = [d.area_m2 for d in ducts]
-    junctions = tuple(
-        step_end_correction_m(math.sqrt(min(a0, a1) / math.pi),
-                              math.sqrt(min(a0, a1) / max(a0, a1)))
-        for a0, a1 in zip(areas, areas[1:], strict=False)
-    ) if cav.shape != "sphere" else tuple(0.0 for _ in areas[1:])
-    if end_losses and cav.shape != "sphere":
-        steps = [abs(a1 - a0) for a0, a1 in zip(areas, areas[1:], strict=False)]
-        steps.append(max(areas[-1] - neck.area_m2, 0.0))
-        closed, step_walls = areas[0], tuple(steps)
+    junctions = (_junctions(ducts) if not tapered
+                 else tuple(0.0 for _ in ducts[1:]))
+    if end_losses and not tapered:
+        steps = [abs(d1.area_m2 - d0.far_area_m2) for d0, d1 in zip(ducts, ducts[1:],
+                                                                     strict=False)]
+        steps.append(max(ducts[-1].far_area_m2 - neck.count * neck.inner_area_m2, 0.0))
+        closed, step_walls = ducts[0].area_m2, tuple(steps)
     else:
         closed, step_walls = 0.0, ()
-    return Bore(tuple(ducts), neck_duct, neck.count, junctions, inner, ends.outer_m,
-                neck.outer_end, closed, step_walls, end_len)
+    return Bore(tuple(ducts), necks[-1], neck.count, junctions, inner, ends.outer_m,
+                neck.outer_end, closed, step_walls, end_len, tuple(necks[:-1]), neck_junctions)
+
+
+def _neck_ducts(obj: ResonatorObject) -> list[Any]:
+    """One opening's ducts from the cavity (or a tube's far end) outwards."""
+    from .distributed import Duct
+
+    neck = obj.neck
+    if neck.sections:
+        # given from the outside inwards, each from its outer to its inner diameter
+        return [Duct.cone(d_in, d_out, ln) for d_out, d_in, ln in reversed(neck.sections)]
+    if neck.shape == "slot":
+        assert neck.width_m is not None and neck.height_m is not None
+        return [Duct.rectangle(neck.width_m, neck.height_m, neck.length_m)]
+    return [Duct.round(neck.diameter_m, neck.length_m)]
+
+
+def _junctions(ducts: list[Any]) -> tuple[float, ...]:
+    """Kergomard & Garcia step corrections between consecutive ducts (0 where
+    they join without a step)."""
+    out = []
+    for d0, d1 in zip(ducts, ducts[1:], strict=False):
+        a0, a1 = d0.far_area_m2, d1.area_m2
+        if abs(a1 - a0) <= 1e-6 * max(a0, a1):
+            out.append(0.0)
+        else:
+            out.append(step_end_correction_m(math.sqrt(min(a0, a1) / math.pi),
+                                             math.sqrt(min(a0, a1) / max(a0, a1))))
+    return tuple(out)
+
+
+def _spheroid_slices(ax: float, ay: float, cz: float, cut_area_m2: float,
+                     n: int) -> list[Any]:
+    """Volume-exact round slices of an ellipsoid (semi-axes ax, ay across,
+    cz along the axis) from the bottom pole up to where its section equals
+    ``cut_area_m2``; slices uniform in the polar angle (finer near the poles)."""
+    from .distributed import Duct
+
+    s_eq = math.pi * ax * ay
+    frac = min(cut_area_m2 / s_eq, 0.998)
+    z_top = cz + cz * math.sqrt(1.0 - frac)
+    theta_top = math.acos((cz - z_top) / cz)
+    edges = [cz - cz * math.cos(theta_top * i / n) for i in range(n + 1)]
+    out = []
+    for z0, z1 in zip(edges, edges[1:], strict=False):
+        h = z1 - z0
+        vol = s_eq * (h - ((z1 - cz) ** 3 - (z0 - cz) ** 3) / (3.0 * cz * cz))
+        out.append(Duct.round(2.0 * math.sqrt(vol / h / math.pi), h))
+    return out
 
 
 @dataclass(frozen=True, slots=True)
@@ -433,7 +492,9 @@ class Prediction:
     q_predicted : float
         Best predicted Q (same model as ``f0_hz``).
     q_predicted_range : tuple of float
-        Q for the viscous end term at the ends of its range (low, high).
+        The range the end losses span (low, high): Q with the viscous end
+        term at 2a (the top of its range) and the thermal layer on the end
+        walls, and the smooth-wall Q (no end losses), 1-D model.
     q_without_radiation : float
         Q with the radiation term left out (what an outside microphone close
         to the mouth measures when not corrected).
@@ -474,6 +535,23 @@ class Prediction:
         (:data:`F0_TOLERANCE_BY_MODEL`), 1.
     notes : tuple of str
         What was assumed.
+    q_smooth_wall : float
+        Q without the end losses (radiation and the side walls' boundary
+        layers only): the physics of 1-D visco-thermal bore models, checked
+        against openwind (tests/test_openwind.py).
+    q_end_losses : float
+        The end losses as one term: 1/q_end = 1/q_predicted - 1/q_smooth_wall.
+    q_viscous_end, q_thermal_end : float
+        The lumped end terms: the viscous end term and the thermal layer on
+        the flat end walls and steps.
+    end_wall_area_m2 : float
+        Area of those end walls, m^2.
+    neck_mass_length_m : float
+        The neck's mass integral as a length at the mouth's area, m (the
+        physical length for a uniform neck).
+    q_terms : tuple of (name, q, source)
+        Every named loss term of the lumped budget with its published source
+        (:data:`Q_TERM_SOURCES`); JSON: ``{name: {"q", "source"}}``.
     """
 
     f0_hz: float
@@ -525,12 +603,21 @@ class Prediction:
     lumped_wave_parameter: float | None = None
     f0_tolerance: float = 0.035
     notes: tuple[str, ...] = field(default_factory=tuple)
+    q_smooth_wall: float = math.nan
+    q_end_losses: float = math.inf
+    q_viscous_end: float = math.inf
+    q_thermal_end: float = math.inf
+    end_wall_area_m2: float = 0.0
+    neck_mass_length_m: float = math.nan
+    q_terms: tuple[tuple[str, float, str], ...] = ()
 
     def to_dict(self) -> dict[str, Any]:
         """Plain Python types, JSON-safe (lists for tuples; None where not available)."""
         out: dict[str, Any] = {}
         for k, v in asdict(self).items():
-            if isinstance(v, (tuple, list)):
+            if k == "q_terms":
+                out[k] = {name: {"q": float(q), "source": src} for name, q, src in v}
+            elif isinstance(v, (tuple, list)):
                 out[k] = [x if isinstance(x, str) else float(x) for x in v]
             elif isinstance(v, str) or v is None:
                 out[k] = v
@@ -548,37 +635,47 @@ class Prediction:
 
 
 def _budget(obj: ResonatorObject, air: AirState, f_hz: float, l_mass_m: float,
-            end_term_m: float, sections3: list[tuple[float, float, float]] | None
-            ) -> tuple[QBudget, float, float]:
+            end_term_m: float, sections3: list[tuple[float, float, float]] | None,
+            end_wall_m2: float) -> tuple[QBudget, float, float]:
     neck = obj.neck
     rho, c = air.density_kg_m3, air.speed_of_sound_m_s
     dv = viscous_boundary_layer_m(air.viscosity_pa_s, rho, f_hz)
     dt = thermal_boundary_layer_m(air.thermal_conductivity_w_mk, rho, air.cp_j_kgk, f_hz)
     s = neck.area_m2
     r_rad = radiation_resistance_pa_s_m3(rho, c, f_hz, neck.outer_end)
-    neck_wall_m2 = neck.count * neck.perimeter_m * neck.length_m
+    neck_wall_m2 = neck.count * neck.wall_area_m2
     if obj.kind == "tube":
-        # Quarter-wave mode, referred to the mouth's flow and the closed end's
-        # pressure: modal mass rho L'/(2S) and compliance S L'/(2 rho c^2)
-        # (time-averaged energy of p = P cos kx); wall terms weighted by the
-        # mean of sin^2 and cos^2 along the tube, 1/2 (common practice).
+        # Quarter-wave (closed-open) or half-wave (open-open) mode, referred to
+        # the mouth's flow: modal mass rho L'/(2S) and compliance
+        # S L'/(2 rho c^2) (time-averaged energy of a standing wave); wall terms
+        # weighted by the mean of sin^2 and cos^2 along the tube, 1/2 (common
+        # practice). An open far end radiates as much as the mouth.
+        if neck.inner_end != "closed":
+            r_rad = r_rad + radiation_resistance_pa_s_m3(rho, c, f_hz, neck.inner_end)
         mass = rho * l_mass_m / (2.0 * s)
         compliance = s * l_mass_m / (2.0 * rho * c * c)
-        r_neck = viscous_resistance_pa_s_m3(rho, f_hz, dv, neck.length_m / 2.0 + end_term_m,
+        r_neck = viscous_resistance_pa_s_m3(rho, f_hz, dv, neck.length_m / 2.0,
                                             neck.opening_area_m2, neck.perimeter_m)
-        r_cav = 0.0
-        g_cav = thermal_conductance_m3_pa_s(f_hz, air.gamma, dt, neck.opening_area_m2, rho, c)
+        r_end = viscous_resistance_pa_s_m3(rho, f_hz, dv, end_term_m, neck.opening_area_m2,
+                                           neck.perimeter_m)
+        r_cav = g_cav = 0.0
+        g_end = thermal_conductance_m3_pa_s(f_hz, air.gamma, dt, end_wall_m2, rho, c)
         g_neck = thermal_conductance_m3_pa_s(f_hz, air.gamma, dt, neck_wall_m2 / 2.0, rho, c)
     else:
         mass = rho * l_mass_m / s
         compliance = compliance_m3_pa(obj.cavity.volume_m3, rho, c)
-        r_neck = viscous_resistance_pa_s_m3(rho, f_hz, dv, neck.length_m + end_term_m,
+        r_neck = viscous_resistance_pa_s_m3(rho, f_hz, dv, neck.viscous_length_m,
                                             neck.opening_area_m2, neck.perimeter_m, neck.count)
+        r_end = viscous_resistance_pa_s_m3(rho, f_hz, dv, end_term_m, neck.opening_area_m2,
+                                           neck.perimeter_m, neck.count)
         r_cav = (cavity_viscous_resistance_pa_s_m3(rho, f_hz, dv, sections3)
                  if sections3 else 0.0)
-        g_cav = thermal_conductance_m3_pa_s(f_hz, air.gamma, dt, _cavity_wall_m2(obj), rho, c)
+        side = max(_cavity_wall_m2(obj) - end_wall_m2, 0.0)
+        g_cav = thermal_conductance_m3_pa_s(f_hz, air.gamma, dt, side, rho, c)
+        g_end = thermal_conductance_m3_pa_s(f_hz, air.gamma, dt, end_wall_m2, rho, c)
         g_neck = thermal_conductance_m3_pa_s(f_hz, air.gamma, dt, neck_wall_m2, rho, c)
-    budget = QBudget.from_elements(f_hz, mass, compliance, r_rad, r_neck, r_cav, g_cav, g_neck)
+    budget = QBudget.from_elements(f_hz, mass, compliance, r_rad, r_neck, r_cav, g_cav, g_neck,
+                                   r_end, g_end)
     return budget, dv, dt
 
 
@@ -587,14 +684,77 @@ def _cavity_wall_m2(obj: ResonatorObject) -> float:
     tube its side wall and closed end."""
     if obj.kind == "tube":
         n = obj.neck
-        return n.perimeter_m * n.length_m + n.opening_area_m2
-    return max(obj.cavity.wall_area_m2 - obj.neck.area_m2, 0.0)
+        return n.wall_area_m2 + (n.opening_area_m2 if n.inner_end == "closed" else 0.0)
+    return max(obj.cavity.wall_area_m2 - obj.neck.count * obj.neck.inner_area_m2, 0.0)
+
+
+def _end_wall_m2(obj: ResonatorObject, bore: Any) -> float:
+    """The flat end walls (closed bottom, steps, the face around the neck), m^2:
+    where the tool adds a thermal layer that 1-D bore models leave out."""
+    if obj.kind == "tube":
+        return obj.neck.opening_area_m2 if obj.neck.inner_end == "closed" else 0.0
+    if obj.cavity.shape in ("sphere", "ellipsoid"):
+        return 0.0
+    if bore is not None:
+        return bore.closed_end_area_m2 + sum(bore.step_wall_areas_m2)
+    # volume only: the two end faces of the cylinder as tall as wide
+    r = (obj.cavity.volume_m3 / (2.0 * math.pi)) ** (1.0 / 3.0)
+    return max(2.0 * math.pi * r * r - obj.neck.count * obj.neck.inner_area_m2, 0.0)
 
 
 def _sections(bore: Any) -> list[tuple[float, float, float]] | None:
+    """Cavity ducts as (area, length, perimeter), cones cut into 16
+    volume-exact slices."""
     if bore is None or not bore.cavity:
         return None
-    return [(d.area_m2, d.length_m, d.perimeter_m) for d in bore.cavity]
+    out = []
+    for d in bore.cavity:
+        if not d.is_cone:
+            out.append((d.area_m2, d.length_m, d.perimeter_m))
+            continue
+        r0, r1 = d.radius_m, math.sqrt(d.far_area_m2 / math.pi)
+        n = 16
+        for i in range(n):
+            ra, rb = r0 + (r1 - r0) * i / n, r0 + (r1 - r0) * (i + 1) / n
+            h = d.length_m / n
+            area = math.pi * (ra * ra + ra * rb + rb * rb) / 3.0
+            out.append((area, h, 2.0 * math.sqrt(math.pi * area)))
+    return out
+
+
+#: Aspect ratios (height over diameter) of the plausible cylinders that stand
+#: in for a cavity given by volume only (common practice: from a squat jar to a
+#: tall vial), and the narrowest cavity over the neck's diameter.
+VOLUME_ONLY_ASPECTS = (0.5, 0.75, 1.0, 1.5, 2.0, 3.0)
+VOLUME_ONLY_MIN_CAVITY_OVER_NECK = 1.25
+
+
+def volume_only_shapes(obj: ResonatorObject) -> list[ResonatorObject]:
+    """The plausible cylinders of a cavity given by volume only: the same
+    volume, neck and ends, height/diameter in :data:`VOLUME_ONLY_ASPECTS`,
+    no narrower than :data:`VOLUME_ONLY_MIN_CAVITY_OVER_NECK` times the neck
+    (a cavity only slightly wider than the neck is the narrow extreme)."""
+    from dataclasses import replace
+
+    from .geometry import Cavity
+
+    v = obj.cavity.volume_m3
+    d_min = VOLUME_ONLY_MIN_CAVITY_OVER_NECK * max(obj.neck.inner_diameter_m,
+                                                   math.sqrt(obj.neck.area_m2 / math.pi) * 2.0)
+    out = []
+    aspects = list(VOLUME_ONLY_ASPECTS)
+    # the narrowest admissible cylinder, when it is within the range
+    h_over_d_max = 4.0 * v / (math.pi * d_min**3)
+    if VOLUME_ONLY_ASPECTS[0] < h_over_d_max < VOLUME_ONLY_ASPECTS[-1]:
+        aspects.append(h_over_d_max)
+    for k in aspects:
+        if k > h_over_d_max * (1 + 1e-9):
+            continue
+        d = (4.0 * v / (math.pi * k)) ** (1.0 / 3.0)
+        cav = Cavity(volume_m3=v, shape="cylinder", diameter_m=d, length_m=k * d,
+                     volume_source="shape")
+        out.append(replace(obj, cavity=cav))
+    return out
 
 
 def predict(obj: ResonatorObject, air: AirState) -> Prediction:
@@ -650,14 +810,19 @@ def predict(obj: ResonatorObject, air: AirState) -> Prediction:
     ends = neck_end_corrections(obj)
     s, v = neck.area_m2, cav.volume_m3
     length = neck.length_m
-    l_geo = length + ends.total_m
-    end_term = VISCOUS_END_TERM_OVER_RADIUS * neck.radius_m
+    # the lumped view of a profiled neck: its mass integral referred to the
+    # mouth's area, the inner end's correction referred to it too
+    inner_ref = ends.inner_m * neck.opening_area_m2 / neck.inner_area_m2
+    l_geo = neck.mass_length_m + ends.outer_m + inner_ref
+    open_open = obj.kind == "tube" and neck.inner_end != "closed"
+    end_term = VISCOUS_END_TERM_OVER_RADIUS * neck.inner_diameter_m / 2.0
     notes: list[str] = []
     bore = bore_from_object(obj)
     sections3 = _sections(bore)
+    end_wall = _end_wall_m2(obj, bore)
 
     if obj.kind == "tube":
-        f_lumped = c / (4.0 * l_geo)
+        f_lumped = c / ((2.0 if open_open else 4.0) * l_geo)
         f_corr0 = f_lumped
         d_cav = v_neck = 0.0
         l_mass = l_geo
@@ -665,33 +830,31 @@ def predict(obj: ResonatorObject, air: AirState) -> Prediction:
     else:
         f_lumped = helmholtz_f0_hz(c, s, v, l_geo)
         d_cav = 0.0
-        if sections3 is not None and cav.shape != "sphere":
+        if sections3 is not None and cav.shape not in ("sphere", "ellipsoid"):
             d_cav = cavity_inertia_length_m(s, [(a, ln) for a, ln, _ in sections3])
-        v_neck = s * l_geo / 3.0
+        neck_air = neck.count * sum(
+            d.volume_m3 for d in _neck_ducts(obj)) if neck.sections else s * length
+        v_neck = (neck_air + s * (l_geo - neck.mass_length_m)) / 3.0
         l_mass = l_geo + d_cav
         f_corr0 = helmholtz_f0_hz(c, s, v + v_neck, l_mass)
-        if cav.shape == "volume":
-            notes.append("cavity given by volume only: its own inertia is not included "
-                         "(give a shape for that); the wall area is estimated")
-    budget0, dv, dt = _budget(obj, air, f_corr0, l_mass, end_term, sections3)
+    budget0, dv, dt = _budget(obj, air, f_corr0, l_mass, end_term, sections3, end_wall)
     if obj.kind == "tube":
         shift_v = shift_t = 0.0
         f_corr = f_corr0
     else:
         shift_v, shift_t = boundary_layer_shift(
-            dv, length + end_term, neck.opening_area_m2, neck.perimeter_m, l_mass,
-            air.gamma, dt, _cavity_wall_m2(obj), v)
+            dv, neck.viscous_length_m + end_term, neck.opening_area_m2, neck.perimeter_m,
+            l_mass, air.gamma, dt, _cavity_wall_m2(obj), v)
         # the layers add mass (1 - 2 shift_v) and compliance (1 - 2 shift_t): exact
         # in that form, first order equal to f (1 + shift_v + shift_t), and never
         # negative for narrow necks
         f_corr = f_corr0 / math.sqrt((1.0 - 2.0 * shift_v) * (1.0 - 2.0 * shift_t))
-    budget, dv, dt = _budget(obj, air, f_corr, l_mass, end_term, sections3)
-    lo_q, hi_q = (
-        _budget(obj, air, f_corr, l_mass, t * neck.radius_m / (2.0 if obj.kind == "tube" else 1.0),
-                sections3)[0].q
-        for t in (VISCOUS_END_TERM_RANGE_OVER_RADIUS[1], VISCOUS_END_TERM_RANGE_OVER_RADIUS[0]))
+    budget, dv, dt = _budget(obj, air, f_corr, l_mass, end_term, sections3, end_wall)
+    hi_end = VISCOUS_END_TERM_RANGE_OVER_RADIUS[1] * neck.inner_diameter_m / 2.0
+    budget_2a = _budget(obj, air, f_corr, l_mass,
+                        hi_end / (2.0 if obj.kind == "tube" else 1.0), sections3, end_wall)[0]
 
-    f_dist = q_dist = limit = None
+    f_dist = q_dist = limit = q_smooth_1d = q_2a_1d = None
     modes: list[Any] = []
     if bore is not None:
         limit = transverse_cutoff_hz(bore, air)
@@ -707,41 +870,67 @@ def predict(obj: ResonatorObject, air: AirState) -> Prediction:
                 notes.append("the 1-D model found no root near the lumped estimate")
         if modes:
             f_dist, q_dist = modes[0].f_hz, modes[0].q
+            try:
+                q_smooth_1d = find_resonance(
+                    bore_from_object(obj, end_losses=False, viscous_end_term_over_radius=0.0),
+                    air, f_dist).q
+                q_2a_1d = find_resonance(
+                    bore_from_object(obj, viscous_end_term_over_radius=(
+                        VISCOUS_END_TERM_RANGE_OVER_RADIUS[1])), air, f_dist).q
+            except ArithmeticError:
+                q_smooth_1d = q_2a_1d = None
 
+    tolerance = None
     if obj.kind == "tube" and f_dist is not None:
         best_f, best_q, model = f_dist, q_dist, "tube-distributed"
     elif obj.kind == "tube":
         best_f, best_q, model = f_corr, budget.q, "corrected-lumped"
-    elif f_dist is not None and cav.shape in ("cylinder", "box", "profile"):
+    elif f_dist is not None and cav.shape in ("cylinder", "box", "profile",
+                                              "elliptic-cylinder"):
         best_f, best_q, model = f_dist, q_dist, "distributed"
-    elif f_dist is not None and cav.shape == "sphere":
+    elif f_dist is not None and cav.shape in ("sphere", "ellipsoid"):
         # The 1-D taper under-represents the 3-D spreading of the flow at the
         # hole (its inner inertia vanishes for a small hole in a large sphere,
         # where the 3-D value tends to 0.82a); the 3-D lumped estimate leaves
         # out the sphere's own inertia. They bracket the flask: take the midpoint.
         best_f, best_q, model = 0.5 * (f_dist + f_corr), q_dist, "sphere-midpoint"
-        notes.append(f"sphere: midpoint of the 1-D taper model ({f_dist:.2f} Hz) and the "
-                     f"corrected lumped model with the 3-D inner end correction "
+        notes.append(f"{cav.shape}: midpoint of the 1-D taper model ({f_dist:.2f} Hz) and "
+                     f"the corrected lumped model with the 3-D inner end correction "
                      f"({f_corr:.2f} Hz); their spread is the model's uncertainty")
+    elif cav.shape == "volume":
+        best_f, best_q, model, tolerance, note = _volume_only(obj, air, f_corr, budget.q)
+        notes.append(note)
     else:
         best_f, best_q, model = f_corr, budget.q, "corrected-lumped"
     assert best_q is not None
     scale = best_q / budget.q if budget.q > 0 else 1.0
-    q_range = (lo_q * scale, hi_q * scale)
-    q_norad = (budget.q_without_radiation * scale)
+    if q_smooth_1d is not None and q_2a_1d is not None and model != "volume-shape-range":
+        q_smooth, q_range = q_smooth_1d, (q_2a_1d, q_smooth_1d)
+    else:
+        q_smooth = budget.q_smooth_wall * scale
+        q_range = (budget_2a.q * scale, q_smooth)
+    q_norad = budget.q_without_radiation * scale
+    inv_end = 1.0 / best_q - 1.0 / q_smooth
+    q_end = math.inf if inv_end <= 0 else 1.0 / inv_end
+    terms = _q_terms(obj, budget)
 
     omega = 2.0 * math.pi * best_f
     if obj.kind == "tube":
-        l_equiv = c / (4.0 * best_f)
+        l_equiv = c / ((2.0 if open_open else 4.0) * best_f)
         x_wave = None
     else:
         l_equiv = s * c * c / (omega * omega * v)
         lc = cav.axial_length_m
         x_wave = None if lc is None else 2.0 * math.pi * f_lumped / c * math.hypot(l_geo, lc)
+    if neck.sections:
+        notes.append(f"neck profile: acoustic mass as a uniform neck of the mouth's area "
+                     f"{1e3 * neck.mass_length_m:.2f} mm long (integral of dx/S(x)); the "
+                     f"inner end correction belongs to the inner diameter "
+                     f"{1e3 * neck.inner_diameter_m:.2f} mm")
     return Prediction(
         f0_hz=best_f,
         effective_neck_length_m=l_equiv,
-        end_correction_m=l_equiv - length,
+        end_correction_m=l_equiv - neck.mass_length_m,
         outer_end_correction_m=ends.outer_m,
         inner_end_correction_m=ends.inner_m,
         acoustic_mass_kg_m4=acoustic_mass_kg_m4(rho, l_geo, s),
@@ -786,9 +975,76 @@ def predict(obj: ResonatorObject, air: AirState) -> Prediction:
         viscous_end_term_m=end_term,
         ka=omega / c * neck.radius_m,
         lumped_wave_parameter=x_wave,
-        f0_tolerance=F0_TOLERANCE_BY_MODEL[model],
+        f0_tolerance=F0_TOLERANCE_BY_MODEL[model] if tolerance is None else tolerance,
         notes=tuple(notes),
+        q_smooth_wall=q_smooth,
+        q_end_losses=q_end,
+        q_viscous_end=budget.q_viscous_end,
+        q_thermal_end=budget.q_thermal_end,
+        end_wall_area_m2=end_wall,
+        neck_mass_length_m=neck.mass_length_m,
+        q_terms=terms,
     )
+
+
+#: Published source of each named loss term (docs/geometry.md, "Predicted Q").
+Q_TERM_SOURCES = {
+    "radiation": "Levine & Schwinger 1948 (unflanged), Kinsler et al. 2000 sec. 7.5 "
+                 "(baffled piston)",
+    "viscous_neck": "Zwikker & Kosten 1949; Keefe 1984 (wide-duct limit)",
+    "thermal_neck": "Zwikker & Kosten 1949; Keefe 1984 (wall admittance)",
+    "viscous_cavity": "Keefe 1984, weighted by the flow (V(x)/V)^2 (physics sheet sec. 5)",
+    "thermal_cavity": "Keefe 1984 (side walls)",
+    "viscous_end": "convention, no measurement behind it: wall length a (0.5a to 2a) per "
+                   "opening (physics sheet sec. 5, UNVERIFIED)",
+    "thermal_end": "Keefe 1984's wall admittance on the flat end walls and steps (left out "
+                   "by 1-D bore models)",
+}
+
+
+def _q_terms(obj: ResonatorObject, budget: QBudget) -> tuple[tuple[str, float, str], ...]:
+    """(name, lumped Q of the term, source) for each named loss term."""
+    values = {
+        "radiation": budget.q_radiation, "viscous_neck": budget.q_viscous_neck,
+        "thermal_neck": budget.q_thermal_neck, "viscous_cavity": budget.q_viscous_cavity,
+        "thermal_cavity": budget.q_thermal_cavity, "viscous_end": budget.q_viscous_end,
+        "thermal_end": budget.q_thermal_end,
+    }
+    return tuple((k, float(q), Q_TERM_SOURCES[k]) for k, q in values.items())
+
+
+def _volume_only(obj: ResonatorObject, air: AirState, f_corr: float,
+                 q_lumped: float) -> tuple[float, float, str, float, str]:
+    """A cavity given by volume only: f0 spans the plausible shapes.
+
+    The 1-D model of each plausible cylinder (:func:`volume_only_shapes`) and
+    the corrected lumped model (a large flat cavity: the full inner
+    correction, no cavity inertia) bound f0; the prediction is the middle of
+    that span and the suggested tolerance adds half the span to the 2 % of a
+    known shape.
+    """
+    from .distributed import find_resonance
+
+    fs, qs = [f_corr], []
+    for o in volume_only_shapes(obj):
+        b = bore_from_object(o)
+        try:
+            r = find_resonance(b, air, f_corr)
+        except ArithmeticError:
+            continue
+        fs.append(r.f_hz)
+        qs.append(r.q)
+    lo, hi = min(fs), max(fs)
+    mid = 0.5 * (lo + hi)
+    half = (hi - lo) / (2.0 * mid)
+    q = float(sorted(qs)[len(qs) // 2]) if qs else q_lumped
+    tol = F0_TOLERANCE_BY_MODEL["distributed"] + half
+    note = (f"cavity given by volume only: assumed a cylinder from squat to tall (height/"
+            f"diameter {VOLUME_ONLY_ASPECTS[0]:g} to {VOLUME_ONLY_ASPECTS[-1]:g}, at least "
+            f"{VOLUME_ONLY_MIN_CAVITY_OVER_NECK:g} x the neck wide) or a large flat cavity; "
+            f"f0 spans {lo:.2f} to {hi:.2f} Hz over those shapes, so the tolerance is widened "
+            f"by {100 * half:.1f} % (give the shape to narrow it); the wall area is estimated")
+    return mid, q, "volume-shape-range", tol, note
 
 
 @dataclass(frozen=True, slots=True)
@@ -886,13 +1142,14 @@ def derive_from_f0(
     c = air.speed_of_sound_m_s
     _positive(speed_of_sound_m_s=c)
     if obj.kind == "tube":
-        # quarter-wave tube: f1 = c / (4 L_eff), so sigma_L = L_eff sigma_f / f0
-        l_eff = c / (4.0 * f0_hz)
+        # quarter-wave tube: f1 = c / (4 L_eff) (half-wave, open at both ends:
+        # c / (2 L_eff)), so sigma_L = L_eff sigma_f / f0
+        l_eff = c / ((4.0 if neck.inner_end == "closed" else 2.0) * f0_hz)
         sigma_l = l_eff * f0_stderr_hz / f0_hz
     else:
         l_eff = neck.area_m2 * c**2 / ((2.0 * math.pi * f0_hz) ** 2 * obj.cavity.volume_m3)
         sigma_l = 2.0 * l_eff * f0_stderr_hz / f0_hz
-    delta = l_eff - neck.length_m
+    delta = l_eff - neck.mass_length_m
     return Derived(
         effective_neck_length_m=l_eff,
         effective_neck_length_stderr_m=sigma_l,

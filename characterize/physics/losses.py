@@ -345,6 +345,10 @@ class QBudget:
 
     Each ``q_*`` is omega M / R (series terms) or omega C / G (shunt terms);
     ``1/q = sum(1/q_i)``. Resistances in Pa s/m^3, conductances in m^3/(Pa s).
+    The smooth-wall terms (radiation, viscous and thermal on the neck's and
+    cavity's side walls) are what 1-D visco-thermal bore models contain; the
+    end terms (the viscous end term of the neck and the thermal layer on the
+    flat end walls and steps) are added by this tool.
     """
 
     frequency_hz: float
@@ -360,6 +364,11 @@ class QBudget:
     viscous_resistance_cavity_pa_s_m3: float
     thermal_conductance_cavity_m3_pa_s: float
     thermal_conductance_neck_m3_pa_s: float
+    q_viscous_end: float = math.inf
+    q_thermal_end: float = math.inf
+    q_smooth_wall: float = math.nan
+    viscous_resistance_end_pa_s_m3: float = 0.0
+    thermal_conductance_end_m3_pa_s: float = 0.0
 
     def to_dict(self) -> dict[str, float]:
         return {k: float(v) for k, v in asdict(self).items()}
@@ -367,8 +376,11 @@ class QBudget:
     @classmethod
     def from_elements(cls, frequency_hz: float, mass_kg_m4: float, compliance_m3_pa: float,
                       r_rad: float, r_neck: float, r_cavity: float, g_cavity: float,
-                      g_neck: float) -> QBudget:
+                      g_neck: float, r_end: float = 0.0, g_end: float = 0.0) -> QBudget:
         r"""Assemble from the elements: :math:`1/Q = \sum R/(\omega M) + \sum G/(\omega C)`.
+
+        ``r_end`` and ``g_end`` are the end terms (viscous end term, thermal
+        layer on the end walls); ``q_smooth_wall`` leaves them out.
 
         References
         ----------
@@ -383,13 +395,18 @@ class QBudget:
             return math.inf if x <= 0 else 1.0 / x
 
         parts = [r_rad / wm, r_neck / wm, r_cavity / wm, g_cavity / wc, g_neck / wc]
+        ends = [r_end / wm, g_end / wc]
         return cls(
-            frequency_hz=frequency_hz, q=q_of(sum(parts)), q_radiation=q_of(parts[0]),
+            frequency_hz=frequency_hz, q=q_of(sum(parts) + sum(ends)),
+            q_radiation=q_of(parts[0]),
             q_viscous_neck=q_of(parts[1]), q_viscous_cavity=q_of(parts[2]),
             q_thermal_cavity=q_of(parts[3]), q_thermal_neck=q_of(parts[4]),
-            q_without_radiation=q_of(sum(parts[1:])),
+            q_without_radiation=q_of(sum(parts[1:]) + sum(ends)),
             radiation_resistance_pa_s_m3=r_rad, viscous_resistance_neck_pa_s_m3=r_neck,
             viscous_resistance_cavity_pa_s_m3=r_cavity,
             thermal_conductance_cavity_m3_pa_s=g_cavity,
             thermal_conductance_neck_m3_pa_s=g_neck,
+            q_viscous_end=q_of(ends[0]), q_thermal_end=q_of(ends[1]),
+            q_smooth_wall=q_of(sum(parts)),
+            viscous_resistance_end_pa_s_m3=r_end, thermal_conductance_end_m3_pa_s=g_end,
         )
