@@ -894,6 +894,10 @@ def predict(obj: ResonatorObject, air: AirState) -> Prediction:
         # where the 3-D value tends to 0.82a); the 3-D lumped estimate leaves
         # out the sphere's own inertia. They bracket the flask: take the midpoint.
         best_f, best_q, model = 0.5 * (f_dist + f_corr), q_dist, "sphere-midpoint"
+        # the two models' spread is this shape's model uncertainty: half of it
+        # widens the 2 % of a known shape (about 2.5 % for a round flask)
+        tolerance = max(F0_TOLERANCE_BY_MODEL[model], F0_TOLERANCE_BY_MODEL["distributed"]
+                        + abs(f_dist - f_corr) / (2.0 * best_f))
         notes.append(f"{cav.shape}: midpoint of the 1-D taper model ({f_dist:.2f} Hz) and "
                      f"the corrected lumped model with the 3-D inner end correction "
                      f"({f_corr:.2f} Hz); their spread is the model's uncertainty")
@@ -1025,19 +1029,17 @@ def _volume_only(obj: ResonatorObject, air: AirState, f_corr: float,
     """
     from .distributed import find_resonance
 
-    fs, qs = [f_corr], []
+    fs = [f_corr]
     for o in volume_only_shapes(obj):
-        b = bore_from_object(o)
         try:
-            r = find_resonance(b, air, f_corr)
+            r = find_resonance(bore_from_object(o), air, f_corr)
         except ArithmeticError:
             continue
         fs.append(r.f_hz)
-        qs.append(r.q)
     lo, hi = min(fs), max(fs)
     mid = 0.5 * (lo + hi)
     half = (hi - lo) / (2.0 * mid)
-    q = float(sorted(qs)[len(qs) // 2]) if qs else q_lumped
+    q = q_lumped
     tol = F0_TOLERANCE_BY_MODEL["distributed"] + half
     note = (f"cavity given by volume only: assumed a cylinder from squat to tall (height/"
             f"diameter {VOLUME_ONLY_ASPECTS[0]:g} to {VOLUME_ONLY_ASPECTS[-1]:g}, at least "
