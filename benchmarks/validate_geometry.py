@@ -33,9 +33,13 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--per", type=int, default=None, help="members per family (default: full)")
     ap.add_argument("--seed", type=int, default=15)
+    ap.add_argument("--family", action="append", choices=list(g.FULL_COUNTS),
+                    help="only this family (repeatable)")
     args = ap.parse_args()
     counts = (dict(g.FULL_COUNTS) if args.per is None
               else {k: args.per for k in g.FULL_COUNTS})
+    if args.family:
+        counts = {k: v for k, v in counts.items() if k in args.family}
     air = g.openwind_air()
     rows: dict[str, list[dict[str, float]]] = {}
     for m in g.family(counts, args.seed):

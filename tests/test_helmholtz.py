@@ -226,28 +226,33 @@ class TestBestModel:
     def test_model_per_shape(self):
         air = _sheet_air()
         cases = {
-            "distributed": {"shape": "cylinder", "diameter": "60 mm", "length": "124 mm"},
-            "sphere-midpoint": {"shape": "sphere", "diameter": "87.4 mm"},
-            "volume-shape-range": {"volume": "350 mL"},
+            "cylinder": ("distributed", {"shape": "cylinder", "diameter": "60 mm",
+                                         "length": "124 mm"}),
+            "sphere": ("distributed", {"shape": "sphere", "diameter": "87.4 mm"}),
+            "volume": ("volume-shape-range", {"volume": "350 mL"}),
         }
-        for model, cav in cases.items():
+        for name, (model, cav) in cases.items():
             p = predict(_shape(cav), air)
             assert p.model == model
-            if model == "distributed":
+            if name == "cylinder":
                 assert p.f0_tolerance == helmholtz.F0_TOLERANCE_BY_MODEL[model]
             else:  # widened by the spread of the shapes or of the two sphere models
-                assert p.f0_tolerance >= helmholtz.F0_TOLERANCE_BY_MODEL[model]
-            if model == "sphere-midpoint":
-                spread = abs(p.f0_distributed_hz - p.f0_corrected_lumped_hz) / p.f0_hz
-                assert p.f0_tolerance == pytest.approx(max(0.025, 0.02 + spread / 2))
-            # the plain lumped formula runs high for all of them (physics sheet section 4)
-            assert p.f0_hz < p.f0_lumped_hz
+                assert p.f0_tolerance > helmholtz.F0_TOLERANCE_BY_MODEL[model]
+            # the plain lumped formula runs high (physics sheet section 4; for the
+            # sphere the 1-D taper has less inner inertia than the 3-D correction
+            # the lumped formula uses, so there it need not)
+            if name != "sphere":
+                assert p.f0_hz < p.f0_lumped_hz
 
-    def test_sphere_midpoint(self):
+    def test_sphere_spread(self):
         p = predict(_shape({"shape": "sphere", "diameter": "87.4 mm"}), _sheet_air())
-        assert p.f0_hz == pytest.approx(0.5 * (p.f0_distributed_hz + p.f0_corrected_lumped_hz))
+        assert p.f0_hz == p.f0_distributed_hz
         # physics sheet section 4: the 1-D and 3-D sphere models differ by 1 to 2 %
-        assert 0.005 < p.f0_distributed_hz / p.f0_corrected_lumped_hz - 1 < 0.03
+        spread = p.f0_distributed_hz / p.f0_corrected_lumped_hz - 1
+        assert 0.005 < spread < 0.03
+        # the whole spread widens the known shape's 2 %
+        assert p.f0_tolerance == pytest.approx(0.02 + abs(spread) * p.f0_corrected_lumped_hz
+                                               / p.f0_distributed_hz)
 
     def test_q_budget_is_consistent(self):
         p = predict(_shape({"shape": "cylinder", "diameter": "60 mm", "length": "124 mm"}),

@@ -577,6 +577,11 @@ def find_resonance(bore: Bore, air: AirState, f_guess_hz: float, lossless: bool 
         w2 = w1 - d1 * (w1 - w0) / (d1 - d0)
         if not np.isfinite(w2):
             break
+        # steps of at most 10 % keep the search local (an open-open tube has a
+        # trivial root at omega = 0 that a long secant step can fall into)
+        step = w2 - w1
+        if abs(step) > 0.1 * abs(w1):
+            w2 = w1 + step * (0.1 * abs(w1) / abs(step))
         w0, d0 = w1, d1
         w1, d1 = w2, d(w2)
         if abs(w1 - w0) < 1e-12 * abs(w1):

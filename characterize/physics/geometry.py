@@ -605,6 +605,10 @@ class ResonatorObject:
                                     "open_end": n.outer_end}
             if n.outer_end_correction_m is not None:
                 tube["open_end_correction"] = m(n.outer_end_correction_m)
+            if n.inner_end != "closed":
+                tube["far_end"] = n.inner_end
+            if n.inner_end_correction_m is not None:
+                tube["far_end_correction"] = m(n.inner_end_correction_m)
             data["tube"] = tube
         else:
             cav: dict[str, Any] = {}
@@ -620,7 +624,9 @@ class ResonatorObject:
                 if value is not None:
                     cav[key] = m(value)
             if c.sections:
-                cav["sections"] = [[m(d), m(ln)] for d, ln in c.sections]
+                cav["sections"] = [[m(x) for x in sec] for sec in c.sections]
+            if c.semi_axes_m:
+                cav["semi_axes"] = [m(x) for x in c.semi_axes_m]
             data["cavity"] = cav
             neck: dict[str, Any] = {}
             if n.shape != "round":
@@ -630,6 +636,9 @@ class ResonatorObject:
                 neck["length"] = m(n.length_m)
             elif n.shape == "hole":
                 neck["diameter"], neck["wall_thickness"] = m(n.diameter_m), m(n.length_m)
+            elif n.shape == "profile":
+                neck["sections"] = [[m(d0), m(ln)] if d0 == d1 else [m(d0), m(d1), m(ln)]
+                                    for d0, d1, ln in n.sections]
             else:
                 neck["diameter"], neck["length"] = m(n.diameter_m), m(n.length_m)
             if n.count != 1:

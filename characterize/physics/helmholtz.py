@@ -84,13 +84,12 @@ MAX_MODES = 5
 #: Suggested f0-mismatch tolerance by how the cavity is described (model
 #: uncertainty plus typical input uncertainty). Known shapes: the 1-D model is
 #: within 0.5 % of openwind (tests/test_openwind.py); a neck diameter read to
-#: 1 % moves f0 by 1 %, the temperature to 1 K by 0.17 % -> 2 %. Spheres: the
-#: 1-D and 3-D models differ by about 2 %, half of it is added -> 2.5 %.
-#: Volume only: the cavity's own inertia and the inner correction's reduction
-#: are unknown (up to about 3 % for squat or narrow cavities) -> 3.5 %.
+#: 1 % moves f0 by 1 %, the temperature to 1 K by 0.17 % -> 2 %. Spheres and
+#: ellipsoids add the spread between their 1-D and 3-D models (computed per
+#: object). Volume only adds half the span of the plausible shapes (computed per
+#: object, at least 3.5 %).
 F0_TOLERANCE_BY_MODEL = {"distributed": 0.02, "tube-distributed": 0.02,
-                         "sphere-midpoint": 0.025, "corrected-lumped": 0.035,
-                         "volume-shape-range": 0.035}
+                         "corrected-lumped": 0.035, "volume-shape-range": 0.035}
 
 
 @dataclass(frozen=True, slots=True)
@@ -448,10 +447,11 @@ class Prediction:
     """What the geometry predicts for one object at one air state.
 
     The headline ``f0_hz`` is the best of the models (``model`` says which):
-    the distributed 1-D model for cylinders, boxes, profiles and tubes; for
-    spheres the midpoint of the 1-D model and the corrected lumped model with
-    the 3-D inner end correction; the corrected lumped model for cavities
-    given by volume only. ``effective_neck_length_m`` is the
+    the distributed 1-D model for cylinders, elliptic cylinders, boxes,
+    profiles, spheres, ellipsoids and tubes (for spheres and ellipsoids the
+    tolerance adds the spread to the corrected lumped model with the 3-D inner
+    end correction); for cavities given by volume only the middle of the span
+    of plausible cylinders. ``effective_neck_length_m`` is the
     lumped-equivalent effective length: the length that puts the plain lumped
     formula at ``f0_hz`` (for a tube: a quarter wavelength), i.e. the same
     quantity that :func:`derive_from_f0` measures; ``end_correction_m`` is
@@ -472,8 +472,8 @@ class Prediction:
     compliance_m3_pa : float
         V/(rho c^2), m^3/Pa.
     model : str
-        ``"distributed"``, ``"corrected-lumped"``, ``"sphere-midpoint"`` or
-        ``"tube-distributed"``.
+        ``"distributed"``, ``"corrected-lumped"``, ``"volume-shape-range"``
+        or ``"tube-distributed"``.
     kind : str
         ``"helmholtz"`` or ``"tube"``.
     f0_lumped_hz : float
@@ -776,13 +776,14 @@ def predict(obj: ResonatorObject, air: AirState) -> Prediction:
     4. Distributed 1-D model (:mod:`~characterize.physics.distributed`):
        complex roots of the lossy bore; f0, Q and the next modes below the
        first transverse cut-on.
-    5. The best model gives ``f0_hz`` and ``q_predicted``: 1-D for cylinders,
-       boxes, profiles and tubes; for spheres the midpoint of the 1-D model
-       and the corrected lumped one with the 3-D inner correction (the 1-D
-       taper under-represents the 3-D spreading at the hole, the 3-D lumped
-       estimate leaves out the sphere's own inertia; they differ by about
-       2 %); corrected lumped for volume only (no length known, so no cavity
-       inertia: f0 may then run a few % high for a squat cavity; a note says so).
+    5. The best model gives ``f0_hz`` and ``q_predicted``: 1-D for every
+       known shape; for spheres and ellipsoids the corrected lumped one with
+       the 3-D inner correction is the other bound (the 1-D taper
+       under-represents the 3-D spreading at the hole, the 3-D lumped estimate
+       leaves out the cavity's own inertia; they differ by 1 to 10 %) and
+       their spread widens ``f0_tolerance``; for volume only the middle of
+       the span of plausible cylinders (:func:`volume_only_shapes`), half the
+       span widening the tolerance; a note states the assumption.
 
     Parameters
     ----------
@@ -892,15 +893,16 @@ def predict(obj: ResonatorObject, air: AirState) -> Prediction:
         # The 1-D taper under-represents the 3-D spreading of the flow at the
         # hole (its inner inertia vanishes for a small hole in a large sphere,
         # where the 3-D value tends to 0.82a); the 3-D lumped estimate leaves
-        # out the sphere's own inertia. They bracket the flask: take the midpoint.
-        best_f, best_q, model = 0.5 * (f_dist + f_corr), q_dist, "sphere-midpoint"
-        # the two models' spread is this shape's model uncertainty: half of it
-        # widens the 2 % of a known shape (about 2.5 % for a round flask)
-        tolerance = max(F0_TOLERANCE_BY_MODEL[model], F0_TOLERANCE_BY_MODEL["distributed"]
-                        + abs(f_dist - f_corr) / (2.0 * best_f))
-        notes.append(f"{cav.shape}: midpoint of the 1-D taper model ({f_dist:.2f} Hz) and "
-                     f"the corrected lumped model with the 3-D inner end correction "
-                     f"({f_corr:.2f} Hz); their spread is the model's uncertainty")
+        # out the cavity's own inertia. Which is nearer a real flask is not
+        # known (physics sheet section 4): the 1-D model (the validated one)
+        # gives f0 and the whole spread widens the tolerance.
+        best_f, best_q, model = f_dist, q_dist, "distributed"
+        spread = abs(f_dist - f_corr) / f_dist
+        tolerance = F0_TOLERANCE_BY_MODEL["distributed"] + spread
+        notes.append(f"{cav.shape}: the 1-D taper model ({f_dist:.2f} Hz); the lumped model "
+                     f"with the 3-D inner end correction gives {f_corr:.2f} Hz "
+                     f"({100 * (f_corr / f_dist - 1):+.1f} %), a spread that widens the "
+                     f"suggested tolerance (which is nearer a real {cav.shape} is not known)")
     elif cav.shape == "volume":
         best_f, best_q, model, tolerance, note = _volume_only(obj, air, f_corr, budget.q)
         notes.append(note)
