@@ -205,8 +205,8 @@ def family(counts: dict[str, int], seed: int = 15) -> list[Member]:
     """The seeded members, ``counts[family]`` of each (one generator per family,
     so a subset's members are the full run's first ones)."""
     out = []
-    for k, (fam, n) in enumerate(counts.items()):
-        rng = np.random.default_rng([seed, k, sorted(FULL_COUNTS).index(fam)])
+    for fam, n in counts.items():
+        rng = np.random.default_rng([seed, sorted(FULL_COUNTS).index(fam)])
         out += [_member(fam, i, rng) for i in range(n)]
     return out
 
