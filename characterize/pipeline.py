@@ -378,6 +378,7 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
         return _ringdown(rec, inside, obj, air, sources, flags, tolerance)
 
     tf: TransferFunction
+    record_fit: FitResult | None = None
     if chosen == "csv":
         from .transfer_csv import read_transfer_csv
 
@@ -415,6 +416,17 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
 
             tf = cross_spectral_transfer(y_in, x, rec.sample_rate_hz)
             tf = _as_method(tf, "one-channel-excitation")
+        elif (modes or 1) == 1 and outside_distance_m is None:
+            # the whole record, errors in both channels, transients modelled
+            from .fitting.record import record_transfer_fit
+
+            def match(f: np.ndarray) -> np.ndarray:
+                return cal.relative.correction(f, inside, outside)
+
+            record_fit, tf = record_transfer_fit(
+                y_in, rec.view(outside), rec.sample_rate_hz, band_hz=band_hz,
+                estimator=chosen,
+                correction=match if cal is not None and cal.relative is not None else None)
         else:
             from .transfer import cross_spectral_transfer
 
@@ -430,7 +442,7 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
     if outside_distance_m is not None and not two_mic:
         raise InputError("--outside-distance", None, "applies to the two-microphone methods "
                          "(sweep, h1, h2) only")
-    if cal is not None and cal.relative is not None and two_mic:
+    if cal is not None and cal.relative is not None and two_mic and record_fit is None:
         tf = replace(tf, h=tf.h / cal.relative.correction(tf.freqs_hz, inside, outside))
     n_modes = modes or 1
     background = None
@@ -445,7 +457,7 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
         if mf.background:
             background = [[c.real, c.imag] for c in mf.background]
     else:
-        fit = fit_transfer(tf, band_hz)
+        fit = record_fit if record_fit is not None else fit_transfer(tf, band_hz)
         mode_list = [{"f0_hz": fit.f0_hz, "f0_stderr_hz": fit.f0_stderr_hz, "q": fit.q,
                       "q_stderr": fit.q_stderr, "gain": fit.gain,
                       "gain_stderr": fit.gain_stderr}]
@@ -490,7 +502,10 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
     flags += check_window(tf, fit)
     flags += check_weighting(fit)
     flags += check_polarity(fit)
-    flags += check_signal_quality(quality, tf.coherence is not None and not one_mic)
+    # the whole-record fit's errors carry both channels' noise (its likelihood), so the
+    # coherence of the smoothed estimate is shown but raises no flag there
+    flags += check_signal_quality(quality, tf.coherence is not None and not one_mic
+                                  and record_fit is None)
     flags += check_nonlinear_drive(quality)
     # the circle is a single-mode cross-check of data the oscillator describes as they
     # are; a Welch estimate is smoothed by its window (the fit models that, the circle

@@ -329,14 +329,16 @@ def test_welch_csv_refit_gives_the_original_fit(welch, seed: int) -> None:
     np.testing.assert_allclose(back.kernel[0], tf.kernel[0], rtol=1e-15, atol=1e-12)
     np.testing.assert_allclose(back.kernel[1], tf.kernel[1], rtol=1e-12, atol=1e-18)
     a, b = res.fit, analyze(None, transfer_path=path).fit
-    # the refit is the same fit: within a small fraction of the standard error
-    assert abs(b.f0_hz - a.f0_hz) < 0.05 * a.f0_stderr_hz
-    assert abs(b.q - a.q) < 0.05 * a.q_stderr
-    assert abs(b.f0_stderr_hz / a.f0_stderr_hz - 1) < 0.02
-    assert abs(b.q_stderr / a.q_stderr - 1) < 0.02
+    # the recording was fitted on its whole-record spectra (fitting/record.py); the
+    # CSV holds the smoothed estimate shown to the user, whose refit (with the
+    # kernel) is a different estimator from the same data: both hold the truth
+    # (simulator input) and agree within their combined errors
     assert b.weighting == a.weighting == "noise-estimate"
-    # and both hold the truth (simulator input)
-    assert abs(b.q - setup.q) < 4 * b.q_stderr
+    for fit in (a, b):
+        assert abs(fit.f0_hz - setup.f0_hz) < 4 * fit.f0_stderr_hz
+        assert abs(fit.q - setup.q) < 4 * fit.q_stderr
+    assert abs(b.f0_hz - a.f0_hz) < 4 * math.hypot(a.f0_stderr_hz, b.f0_stderr_hz)
+    assert abs(b.q - a.q) < 4 * math.hypot(a.q_stderr, b.q_stderr)
     # the coherence comes back (9 significant digits), so the refit raises the same
     # coherence-based flags
     assert back.coherence is not None
