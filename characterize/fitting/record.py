@@ -47,7 +47,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from ..errors import FitError
-from ..transfer import TransferFunction, _fast_below, estimate_peak
+from ..transfer import TransferFunction, estimate_peak
 from .fit import MAX_DELAY_S, FitResult, initial_delay_and_sign
 from .models import oscillator
 
@@ -75,6 +75,16 @@ MIN_RESONANCE_CHI2 = 100.0
 MIN_CYCLES = 3.0
 #: Alternations of the resonance fit and the noise-level estimate.
 PASSES = 4
+
+
+def _fast_below(n: int) -> int:
+    """The largest 5-smooth length not above ``n`` (a fast FFT size)."""
+    from scipy.fft import next_fast_len
+
+    m = int(n)
+    while m > 16 and next_fast_len(m, real=True) != m:
+        m -= 1
+    return m
 
 
 def _spectra(inside: NDArray[np.floating], outside: NDArray[np.floating], rate_hz: float
@@ -187,15 +197,21 @@ def record_transfer_fit(inside: NDArray[np.floating], outside: NDArray[np.floati
     excited = fc[gxx > 1e-6 * level]
     lo = max(float(excited[0]), 4 * k / t_s)
     hi = min(float(excited[-1]), 0.45 * rate_hz)
+    # a short record resolves nothing below a few smoothing cells
+    short = (f"; the recording ({t_s:.3g} s) is too short to show a resonance below "
+             f"{lo:.0f} Hz" if 4 * k / t_s > float(excited[0]) else "")
     inband = (fc >= lo) & (fc <= hi)
     good = inband & (coh >= RELATED_COHERENCE)
     if good.size < 3 or not np.any(good[:-2] & good[1:-1] & good[2:]):
         top = float(np.max(coh[inband])) if np.any(inband) else 0.0
         raise FitError(f"the channels are unrelated (coherence at most {top:.2f} between "
                        f"{lo:.0f} and {hi:.0f} Hz): the inside microphone does not hear "
-                       "what the outside one hears")
+                       f"what the outside one hears{short}")
     peak_h = np.where(coh >= RELATED_COHERENCE, h1, np.nan)
-    f0, q = estimate_peak(fc, peak_h, (lo, hi) if band_hz is None else band_hz)
+    try:
+        f0, q = estimate_peak(fc, peak_h, (lo, hi) if band_hz is None else band_hz)
+    except FitError as exc:
+        raise FitError(f"{exc}{short}") from None
     df = rate_hz / n
 
     def band_for(f0: float, q: float) -> tuple[float, float]:
