@@ -23,6 +23,7 @@ COMMANDS = {
     "levels": "levels",
     "batch": "batch",
     "selftest": "selftest",
+    "compare": "compare",
 }
 
 

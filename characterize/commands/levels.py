@@ -95,7 +95,10 @@ def levels(manifest: Path, out_dir: Path | None, as_json: bool, force: bool) -> 
         write_document(targets[0], doc)
         if doc["schema"] == "characterize.levels/1":
             tuning_plots.levels_plot(result, targets[1])
-            page = tuning_report.levels_page(result, str(manifest), png_bytes(targets[1]))
+            obj = next((m.result.object for m in measured if m.result.object is not None),
+                       None)
+            page = tuning_report.levels_page(result, str(manifest), png_bytes(targets[1]),
+                                             None if obj is None else obj.to_dict())
         else:
             tuning_plots.power_law_plot(result, targets[1])
             page = tuning_report.power_law_page(result, str(manifest), png_bytes(targets[1]))

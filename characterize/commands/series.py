@@ -68,7 +68,8 @@ def series(manifest: Path, vary: str, as_json: bool, out_dir: Path | None, force
 
         write_document(targets[0], doc)
         series_plot(fit, targets[1])
-        write_study_reports(series_page(fit, str(manifest), png_bytes(targets[1])),
+        write_study_reports(series_page(fit, str(manifest), png_bytes(targets[1]),
+                                        None if obj is None else obj.to_dict()),
                             targets[2], targets[3])
     if as_json:
         click.echo(to_json(doc), nl=False)

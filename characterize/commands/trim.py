@@ -57,7 +57,13 @@ def _text(a: Any) -> str:
                      f"{_pm(d.new_diameter_m * mm, d.new_diameter_stderr_m * mm)} mm "
                      f"(from {a.diameter_m * mm:.2f} mm)")
     from ..report.text import flag_lines
+    from ..report.values import length_sensitivity_text
 
+    if n.cut_m >= 0 and n.possible:
+        lines.append("  note:     " + length_sensitivity_text(n.cut_m, a.temperature_c, "the cut"))
+    else:
+        lines.append("  note:     errors are the fit's only; the geometry's and the "
+                     "temperature's come on top")
     lines += flag_lines(a.flags)
     return "\n".join(lines)
 

@@ -138,20 +138,40 @@ def sketch_object(obj: ResonatorObject, path: str | Path,
         dims = f"slot {1e3 * neck.width_m:.1f} x {1e3 * neck.height_m:.1f} mm"  # type: ignore[operator]
     else:
         dims = f"{neck.shape} d {1e3 * neck.diameter_m:.1f} mm"
-    ax.annotate(f"{what}{dims}, L {length:.1f} mm\nouter {neck.outer_end}"
+    note = ax.annotate(f"{what}{dims}, L {length:.1f} mm\nouter {neck.outer_end}"
                 + ("" if obj.kind == "tube" else f", inner {neck.inner_end}"),
                 xy=(0.0, y1 + 1e3 * ends.outer_m), xytext=(0, 8),
                 textcoords="offset points", fontsize=8, color=PALETTE["ink"], va="bottom",
                 ha="center")
     title = f"{obj.name}"
     if prediction is not None:
+        lo_q, hi_q = sorted(prediction.q_predicted_range)
         title += (f": f0 {prediction.f0_hz:.1f} Hz, Q {prediction.q_predicted:.0f} "
-                  f"({prediction.model})")
+                  f"({lo_q:.0f} to {hi_q:.0f}; {prediction.model})")
     ax.set_title(title, fontsize=10, color=PALETTE["ink"], loc="left")
     ax.set_aspect("equal", adjustable="datalim")
     ax.set_xlabel("width (mm)")
     ax.set_ylabel("height above the bottom (mm)")
-    ax.legend(fontsize=7, frameon=False, loc="lower center", bbox_to_anchor=(0.5, -0.42),
-              ncol=1)
-    fig.tight_layout()
+    from ..report.plots import legend_outside
+
+    legend_outside(fig, [ax])
+    _clear_title(fig, ax, note)
     return _save(fig, path)
+
+
+def _clear_title(fig: object, ax: object, note: object, tries: int = 12) -> None:
+    """Raise the top of the plot until the neck's label sits inside the axes,
+    clear of the title (it is placed above the mouth, in data coordinates)."""
+    for _ in range(tries):
+        fig.canvas.draw()  # type: ignore[attr-defined]
+        r = fig.canvas.get_renderer()  # type: ignore[attr-defined]
+        nb = note.get_window_extent(r)  # type: ignore[attr-defined]
+        ab = ax.get_window_extent(r)  # type: ignore[attr-defined]
+        tb = ax.title.get_window_extent(r)  # type: ignore[attr-defined]
+        if nb.y1 <= ab.y1 - 2 and not nb.overlaps(tb):
+            return
+        lo, hi = ax.get_ylim()  # type: ignore[attr-defined]
+        # an invisible point above the top: the limits follow it (the equal
+        # aspect adjusts the data limits, so they are not set directly)
+        ax.plot([0.0], [hi + 0.15 * (hi - lo)], alpha=0.0)  # type: ignore[attr-defined]
+        ax.autoscale_view()  # type: ignore[attr-defined]

@@ -16,46 +16,91 @@ from .page import Figure, Page, Table, fmt, png_bytes, render_html, write_html, 
 
 
 def fit_page(doc: dict[str, Any], png: bytes | None = None) -> Page:
-    """The report of one result document (and its response plot as PNG bytes)."""
+    """The report of one result document (and its response plot as PNG bytes):
+    the fit (values rounded to their errors), what gain and delay are, the raw
+    and corrected values when a correction was applied, the drive level from a
+    calibrated channel (and its caution), the prediction with Q and its range,
+    the object with every dimension, the flags and the settings."""
+    from .values import (
+        DELAY_MEANING,
+        GAIN_MEANING,
+        correction_note,
+        correction_rows,
+        drive_caution,
+        drive_rows,
+        length_sensitivity_text,
+        object_rows,
+        q_predicted_text,
+        rounded,
+    )
+
     fit, inp, air = doc["fit"], doc["input"], doc["air"]
     obj = doc.get("object") or {}
-    rows = [("f0 (Hz)", fmt(fit["f0_hz"], ".3f"), fmt(fit.get("f0_stderr_hz"), ".2g")),
-            ("Q", fmt(fit["q"], ".2f"), fmt(fit.get("q_stderr"), ".2g")),
-            ("gain", fmt(fit.get("gain"), ".4f"), fmt(fit.get("gain_stderr"), ".2g")),
-            ("delay (µs)", fmt(1e6 * (fit.get("delay_s") or 0.0), ".1f"),
-             fmt(None if fit.get("delay_stderr_s") is None else 1e6 * fit["delay_stderr_s"],
-                  ".2g")),
-            ("reduced chi-square", fmt(fit.get("reduced_chi2"), ".2f"), "")]
+
+    def row(label: str, value: Any, err: Any, fallback: int = 3) -> tuple[str, str, str]:
+        v, e = rounded(value, err, fallback)
+        return (label, v, e)
+
+    delay_err = fit.get("delay_stderr_s")
+    rows = [row("f0 (Hz)", fit["f0_hz"], fit.get("f0_stderr_hz")),
+            row("Q", fit["q"], fit.get("q_stderr"), 2)]
+    if fit.get("method") != "damped-sinusoid":
+        rows += [row("gain", fit.get("gain"), fit.get("gain_stderr"), 4),
+                 row("delay (µs)", 1e6 * (fit.get("delay_s") or 0.0),
+                     None if delay_err is None else 1e6 * delay_err, 1),
+                 ("reduced chi-square", fmt(fit.get("reduced_chi2"), ".2f"), "")]
+    coh = (doc.get("quality") or {}).get("coherence_min_in_band")
+    if coh is not None:
+        rows.append(("lowest coherence in the fit band", fmt(coh, ".3f"), ""))
     pred, der = doc.get("prediction"), doc.get("derived")
+    lead = [f"gain: {GAIN_MEANING}; delay: {DELAY_MEANING}."]
     if pred is not None and der is not None:
-        rows += [("predicted f0 (Hz)", fmt(pred["f0_hz"], ".2f"), ""),
-                 ("measured effective neck length (mm)",
-                  fmt(1000 * der["effective_neck_length_m"], ".2f"),
-                  fmt(1000 * der["effective_neck_length_stderr_m"], ".2g")),
-                 ("measured end correction (neck radii)",
-                  fmt(der["end_correction_over_radius"], ".2f"),
-                  fmt(der.get("end_correction_over_radius_stderr"), ".2g"))]
+        rel = fit["f0_hz"] / pred["f0_hz"] - 1
+        rows += [("predicted f0 (Hz)", f"{pred['f0_hz']:.2f} (measured {100 * rel:+.2f} %)",
+                  ""),
+                 ("predicted Q", q_predicted_text(pred) or "—", ""),
+                 row("measured L_eff (mm)", 1000 * der["effective_neck_length_m"],
+                     1000 * der["effective_neck_length_stderr_m"]),
+                 row("end correction (radii)", der["end_correction_over_radius"],
+                     der.get("end_correction_over_radius_stderr"))]
+        lead.append("L_eff: " + length_sensitivity_text(der["effective_neck_length_m"],
+                                                       air["temperature_c"], "it") + ".")
+    tables = [Table("Fitted damped oscillator (1-sigma standard errors)",
+                    ("quantity", "value", "standard error"), tuple(rows))]
+    note = correction_note(doc)
+    corr = correction_rows(doc)
+    if corr:
+        tables.append(Table("Outside-microphone radiation: values before and after the "
+                            "correction", ("quantity", "uncorrected", "corrected"),
+                            tuple(corr)))
+    drive = drive_rows(doc)
+    if drive:
+        tables.append(Table("Drive level (calibrated inside channel)", ("quantity", "value"),
+                            tuple(drive)))
+    objrows = object_rows(obj, air)
+    if objrows:
+        tables.append(Table("The object and the air", ("item", "value"), tuple(objrows)))
+    if note:
+        lead.insert(0, note[0].upper() + note[1:] + ".")
     settings = [("recording", inp["recording"]), ("method", inp["method"]),
                 ("channels", f"inside {inp.get('inside_channel')}, "
                              f"outside {inp.get('outside_channel')}"),
                 ("sweep", inp.get("sweep") or "—"),
                 ("fit band (Hz)", " to ".join(fmt(b, ".1f") for b in fit.get("band_hz", []))),
-                ("air", f"{fmt(air['temperature_c'], '.1f')} °C, RH "
-                        f"{fmt(100 * air['relative_humidity'], '.0f')} %, "
-                        f"{fmt(air['pressure_pa'] / 1000, '.2f')} kPa, c = "
-                        f"{fmt(air['speed_of_sound_m_s'], '.2f')} m/s"),
                 ("object file", obj.get("source_path") or "—")]
     name = obj.get("name") or Path(inp["recording"]).name
     pred_text = " and the geometry prediction" if pred is not None else ""
+    coh_text = ", the coherence" if coh is not None else ""
     figure = None if png is None else Figure(
         png, f"Magnitude and phase of the measured inside/outside transfer function of "
-             f"{name} with the fitted model{pred_text}, the fit band shaded, and the "
+             f"{name} with the fitted model{pred_text}, the fit band shaded{coh_text}, and the "
              f"normalised residuals below",
         "Measured H (points), fit (line)"
-        + (", geometry prediction (dashed)" if pred is not None else "") + "; fit band shaded.")
+        + (", geometry prediction (dashed)" if pred is not None else "")
+        + ("; coherence panel with the 0.95 and 0.8 thresholds" if coh is not None else "")
+        + "; fit band shaded.")
     return Page(kind="fit report", title=name, subtitle=f"{inp['recording']} · {inp['method']}",
-                tables=(Table("Fitted damped oscillator (1-sigma standard errors)",
-                              ("quantity", "value", "standard error"), tuple(rows)),),
+                lead=tuple(lead), caution=drive_caution(doc), tables=tuple(tables),
                 figure=figure, flags=tuple(doc.get("flags", [])), settings=tuple(settings))
 
 

@@ -120,6 +120,7 @@ result.</p>
 <dt>Prediction</dt><dd>{{ mismatch_rule }}</dd>
 <dt>Flags that fail</dt><dd>{{ fail_flags }}</dd>
 <dt>Flags that warn</dt><dd>{{ warn_flags }}</dd>
+<dt>Object</dt><dd>{{ object_text }}</dd>
 <dt>Defaults</dt><dd>{{ defaults }}</dd>
 <dt>Run</dt><dd>{{ run_text }}; characterize {{ version }}</dd>
 </dl>
@@ -252,6 +253,7 @@ def context(summary: BatchSummary, out_dir: str | Path, figures: dict[str, bytes
     ``embed=False`` leaves the item plots out (``plot`` keeps their path).
     """
     from ..batch import OUTLIER_MODIFIED_Z, _now
+    from .values import object_text_from_file
 
     spec, st = summary.spec, summary.stats
     out = Path(out_dir)
@@ -300,13 +302,14 @@ def context(summary: BatchSummary, out_dir: str | Path, figures: dict[str, bytes
     n_an = st.n_analyzed
     fig_meta = {
         "f0_histogram": (
-            f"Histogram of f0 in Hz for the {n_an} items with a result: passed items solid, "
-            f"failed items hatched; tolerance band {band} shaded, target "
+            f"Histogram of f0 in Hz for the {n_an} items with a result: f0 within tolerance "
+            f"solid, outside it hatched; tolerance band {band} shaded, target "
             f"{target:.2f} Hz dashed; mean {_f(st.f0_mean_hz, '.2f')} Hz, standard deviation "
             f"{_f(st.f0_std_hz, '.3f')} Hz.",
             "f0 of the items with a result, against the tolerance band."),
         "q_histogram": (
-            f"Histogram of Q for the {n_an} items with a result: passed solid, failed hatched; "
+            f"Histogram of Q for the {n_an} items with a result: Q within the limits solid, "
+            f"outside them hatched; "
             f"allowed range shaded; mean {_f(st.q_mean, '.2f')}, standard deviation "
             f"{_f(st.q_std, '.2f')}.",
             "Q of the items with a result, against the allowed range."),
@@ -350,7 +353,7 @@ def context(summary: BatchSummary, out_dir: str | Path, figures: dict[str, bytes
                           "geometry's prediction"),
         "fail_flags": _flag_list(spec.fail_flags) + " (and any flag of severity error)",
         "warn_flags": _flag_list(spec.warn_flags) + " (and any other warning)",
-        "defaults": defaults,
+        "defaults": defaults, "object_text": object_text_from_file(spec.default_object),
         "run_text": (f"{run.get('workers', 0)} worker processes, "
                      f"{run.get('computed_items', 0)} items computed, "
                      f"{run.get('kept_items', 0)} kept from an earlier run"),

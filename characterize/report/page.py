@@ -165,29 +165,76 @@ def write_html(path: str | Path, page: Page) -> Path:
 PDF_LINES_PER_PAGE = 52
 _WRAP = 100  # characters a line at 8.5 pt across the page
 PDF_HEADING_MIN = 10  # narrowest table column (characters) before its heading wraps
+#: Characters of a monospace table line at 7.2 pt across the page's text width
+#: (0.86 of 8.27 in = 511 pt; DejaVu Sans Mono advances 0.602 em: 118 characters),
+#: with a margin.
+PDF_TABLE_CHARS = 110
+_LINE_DY = 0.0165  # height of an 8.5 pt line, as a fraction of the page
+_TEXT_HEIGHT = 0.945 - 0.05  # from the first line's top to above the page number
+
+
+def _column_widths(natural: list[int], budget: int) -> list[int]:
+    """Column widths (characters) within ``budget`` (2 spaces between columns):
+    the natural widths when they fit, else the widest columns narrowed in turn,
+    never below PDF_HEADING_MIN."""
+    widths = list(natural)
+    while sum(widths) + 2 * (len(widths) - 1) > budget:
+        k = max(range(len(widths)), key=lambda i: widths[i])
+        if widths[k] <= PDF_HEADING_MIN:
+            break
+        widths[k] -= 1
+    return widths
 
 
 def _table_lines(t: Table) -> list[tuple[str, dict[str, Any]]]:
-    """A table as monospace lines: each column as wide as its widest cell (at most
-    28 characters), headings wrapped onto up to three lines to fit."""
-    from .pdf import _clip
+    """A table as monospace lines: each column as wide as its widest cell, narrowed
+    to fit the page when needed; a cell longer than its column wraps onto more
+    lines of its row (nothing is cut); headings wrap the same way."""
+    ncol = len(t.columns)
+    natural = [max([len(r[k]) for r in t.rows if k < len(r)]
+                   + [min(len(t.columns[k]), 18), PDF_HEADING_MIN // 2])
+               for k in range(ncol)]
+    widths = _column_widths(natural, PDF_TABLE_CHARS)
 
-    widths = [min(28, max([len(r[k]) for r in t.rows if k < len(r)] + [PDF_HEADING_MIN]))
-              for k in range(len(t.columns))]
-    heads = [textwrap.wrap(c, w)[:3] or [""] for c, w in zip(t.columns, widths, strict=True)]
+    def wrap(text: str, w: int) -> list[str]:
+        return textwrap.wrap(text, w, break_long_words=True, break_on_hyphens=False) or [""]
 
-    def line(r: tuple[str, ...] | list[str]) -> str:
-        return "  ".join(format(_clip(c, w), f"{'<' if k == 0 else '>'}{w}")
-                         for k, (c, w) in enumerate(zip(r, widths, strict=True))).rstrip()
+    def lines_of(cells: tuple[str, ...] | list[str]) -> list[str]:
+        parts = [wrap(c, w) for c, w in zip(cells, widths, strict=False)]
+        parts += [[""]] * (ncol - len(parts))
+        out = []
+        for i in range(max(len(p) for p in parts)):
+            out.append("  ".join(format(p[i] if i < len(p) else "",
+                                        f"{'<' if k == 0 else '>'}{widths[k]}")
+                                 for k, p in enumerate(parts)).rstrip())
+        return out
 
     mono = {"family": "DejaVu Sans Mono", "fontsize": 7.2}
     out: list[tuple[str, dict[str, Any]]] = [(w, {"weight": "bold"})
                                              for w in textwrap.wrap(t.caption, _WRAP - 10)]
-    for i in range(max(len(h) for h in heads)):
-        out.append((line([h[i] if i < len(h) else "" for h in heads]),
-                    {**mono, "weight": "bold"}))
-    out += [(line(r), mono) for r in t.rows]
+    out += [(ln, {**mono, "weight": "bold"}) for ln in lines_of(t.columns)]
+    for r in t.rows:
+        out += [(ln, mono) for ln in lines_of(r)]
     return out + [("", {})]
+
+
+def _line_height(kw: dict[str, Any]) -> float:
+    return _LINE_DY * kw.get("fontsize", 8.5) / 8.5
+
+
+def _pdf_chunks(lines: list[tuple[str, dict[str, Any]]]
+                ) -> list[list[tuple[str, dict[str, Any]]]]:
+    """The text lines cut into pages by their heights (a heading takes more room)."""
+    chunks: list[list[tuple[str, dict[str, Any]]]] = [[]]
+    used = 0.0
+    for ln in lines:
+        h = _line_height(ln[1])
+        if used + h > _TEXT_HEIGHT and chunks[-1]:
+            chunks.append([])
+            used = 0.0
+        chunks[-1].append(ln)
+        used += h
+    return chunks
 
 
 def _pdf_lines(page: Page) -> list[tuple[str, dict[str, Any]]]:
@@ -200,9 +247,10 @@ def _pdf_lines(page: Page) -> list[tuple[str, dict[str, Any]]]:
 
     lines: list[tuple[str, dict[str, Any]]] = [
         (f"characterize {page.kind}", {"color": PALETTE["muted"]}),
-        (page.title[:60], {"fontsize": 15, "color": PALETTE["ink"], "weight": "bold"}),
-        ("", {}),
     ]
+    lines += [(w, {"fontsize": 15, "color": PALETTE["ink"], "weight": "bold"})
+              for w in textwrap.wrap(page.title, 55, break_long_words=True) or [""]]
+    lines.append(("", {}))
     lines += para(f"{page.subtitle}; written {page.written} by characterize {__version__}",
                   {"color": PALETTE["muted"]})
     lines.append(("", {}))
@@ -230,8 +278,7 @@ def _pdf_lines(page: Page) -> list[tuple[str, dict[str, Any]]]:
 
 def pdf_page_count(page: Page) -> int:
     """Pages :func:`write_pdf` writes: the text pages, and one for the figure."""
-    n = len(_pdf_lines(page))
-    return max(1, math.ceil(n / PDF_LINES_PER_PAGE)) + (page.figure is not None)
+    return len(_pdf_chunks(_pdf_lines(page))) + (page.figure is not None)
 
 
 def write_pdf(path: str | Path, page: Page) -> Path:
@@ -245,7 +292,7 @@ def write_pdf(path: str | Path, page: Page) -> Path:
     from .plots import PALETTE
 
     lines = _pdf_lines(page)
-    chunks = [lines[i:i + PDF_LINES_PER_PAGE] for i in range(0, len(lines), PDF_LINES_PER_PAGE)]
+    chunks = _pdf_chunks(lines)
     total = pdf_page_count(page)
     head = f"characterize {page.kind}: {page.title}"[:95]
 

@@ -117,6 +117,7 @@ def _cover(pages: _Pages, ctx: dict[str, Any]) -> None:
                f"({s.spec.f0_tolerance_text}): {ctx['band']}"),
         ("Q", ctx["q_limits"]), ("Prediction", ctx["mismatch_rule"]),
         ("Flags that fail", ctx["fail_flags"]), ("Flags that warn", ctx["warn_flags"]),
+        ("Object", ctx["object_text"]),
         ("Defaults", ctx["defaults"]),
         ("Run", f"{ctx['run_text']}; characterize {__version__}"),
     ]

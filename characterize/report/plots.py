@@ -44,6 +44,61 @@ def _figure(nrows: int, heights: list[float], size: tuple[float, float]) -> tupl
     return fig, axes
 
 
+def frequency_axis(ax: Any, axis: str = "x") -> None:
+    """Ticks an acoustician reads on a logarithmic frequency axis: 1-2-5 steps
+    (20, 50, 100, 200 Hz ...) as plain numbers, with unlabelled minor ticks at
+    the other integers; more steps (1-1.5-2-3-5-7) on spans under one decade."""
+    from matplotlib.ticker import FixedLocator, FuncFormatter, LogLocator, NullFormatter
+
+    a = ax.xaxis if axis == "x" else ax.yaxis
+    lo, hi = sorted(ax.get_xlim() if axis == "x" else ax.get_ylim())
+    if lo <= 0 or hi <= lo:
+        return
+    span = hi / lo
+    steps = ((1.0, 2.0, 5.0) if span > 8 else (1.0, 1.5, 2.0, 3.0, 5.0, 7.0) if span > 3
+             else (1.0, 1.2, 1.5, 2.0, 2.5, 3.0, 4.0, 5.0, 6.0, 7.0, 8.0))
+    ticks = [m * 10.0 ** e for e in range(int(np.floor(np.log10(lo))) - 1,
+                                          int(np.ceil(np.log10(hi))) + 1)
+             for m in steps]
+    ticks = [t for t in ticks if lo <= t <= hi]
+    a.set_major_locator(FixedLocator(ticks))
+    a.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
+    a.set_minor_locator(LogLocator(base=10, subs=tuple(range(1, 10))))
+    a.set_minor_formatter(NullFormatter())
+
+
+def legend_outside(fig: Any, axes: Any, fontsize: float = 7) -> Any:
+    """One legend for the entries of ``axes`` (an axes or a list), placed under the
+    lowest of them, outside every data area, in as many columns as fit the
+    figure's width; the figure is laid out around it."""
+    axes = list(np.atleast_1d(axes))
+    handles, labels = [], []
+    for ax in axes:
+        hh, ll = ax.get_legend_handles_labels()
+        handles += hh
+        labels += ll
+    fig.tight_layout()
+    if not handles:
+        return None
+    bottom = fig.subplotpars.bottom
+    h_in = fig.get_size_inches()[1]
+    for ncol in range(min(3, len(labels)), 0, -1):
+        rows = -(-len(labels) // ncol)
+        room = (0.17 * rows + 0.12) / h_in  # the legend's height as a fraction of the figure
+        fig.subplots_adjust(bottom=bottom + room)
+        low = min(axes, key=lambda a: a.get_position().y0)
+        pos = low.get_position()
+        leg = fig.legend(handles, labels, loc="upper left", ncol=ncol, fontsize=fontsize,
+                         frameon=False, bbox_to_anchor=(0.01, pos.y0 - 0.42 / h_in))
+        fig.canvas.draw()
+        box = leg.get_window_extent()
+        # a margin: text is a little wider at the saved resolution (font hinting)
+        if box.x1 <= 0.97 * fig.bbox.x1 and box.y0 >= fig.bbox.y0 or ncol == 1:
+            return leg
+        leg.remove()
+    return None
+
+
 def _save(fig: Any, path: str | Path) -> Path:
     import matplotlib.pyplot as plt
 
@@ -55,6 +110,11 @@ def _save(fig: Any, path: str | Path) -> Path:
         return atomic_write(path, w)
     finally:
         plt.close(fig)
+
+
+def _q_text(pred: Any) -> str:
+    lo, hi = sorted(pred.q_predicted_range)
+    return f"{pred.q_predicted:.3g}, {lo:.3g} to {hi:.3g}"
 
 
 def response_plot(result: Result, path: str | Path) -> Path:
@@ -78,8 +138,28 @@ def response_plot(result: Result, path: str | Path) -> Path:
     unwrap = np.exp(2j * np.pi * f * fit.delay_s) * sign  # show phase without the delay
     unwrap_m = np.exp(2j * np.pi * ff * fit.delay_s) * sign
 
-    fig, (ax_m, ax_p, ax_r) = _figure(3, [3, 2, 1.3], (7.2, 6.6))
-    for ax in (ax_m, ax_p, ax_r):
+    coh = None
+    if tf.coherence is not None:
+        coh = np.asarray(tf.coherence)[sel]
+        if coh.size > 3000:
+            coh = coh[np.linspace(0, coh.size - 1, 3000).round().astype(int)]
+    if coh is None:
+        fig, (ax_m, ax_p, ax_r) = _figure(3, [3, 2, 1.3], (7.2, 7.0))
+        panels = (ax_m, ax_p, ax_r)
+    else:
+        fig, (ax_m, ax_p, ax_c, ax_r) = _figure(4, [3, 2, 1.3, 1.3], (7.2, 8.2))
+        panels = (ax_m, ax_p, ax_c, ax_r)
+        ax_c.plot(f, coh, ".", ms=2.5, color=PALETTE["ink"], label="coherence")
+        from ..checks import LOW_COHERENCE, UNDERSTATED_ERRORS_COHERENCE
+
+        ax_c.axhline(UNDERSTATED_ERRORS_COHERENCE, color=PALETTE["prediction"], ls=":", lw=1.1,
+                     label=f"{UNDERSTATED_ERRORS_COHERENCE:g}: errors understated below")
+        ax_c.axhline(LOW_COHERENCE, color=PALETTE["fit"], ls="--", lw=1.1,
+                     label=f"{LOW_COHERENCE:g}: low-coherence below")
+        ax_c.set_ylim(max(0.0, min(0.7, float(np.nanmin(coh)) - 0.05) if coh.size else 0.0),
+                      1.02)
+        ax_c.set_ylabel("coherence γ²")
+    for ax in panels:
         ax.axvspan(lo_b, hi_b, color=PALETTE["band"], alpha=0.6, lw=0,
                    label="fit band" if ax is ax_m else None)
     ax_m.plot(f, 20 * np.log10(np.abs(h)), ".", ms=2.5, color=PALETTE["ink"], label="measured")
@@ -88,11 +168,11 @@ def response_plot(result: Result, path: str | Path) -> Path:
     if result.prediction is not None and result.modes_fit is None:
         pred = inside_outside(ff, result.prediction.f0_hz, fit.q, fit.gain, fit.delay_s, sign)
         ax_m.plot(ff, 20 * np.log10(np.abs(pred)), "--", color=PALETTE["prediction"], lw=1.3,
-                  label=f"geometry: f0 {result.prediction.f0_hz:.2f} Hz (fitted Q, gain)")
+                  label=f"geometry: f0 {result.prediction.f0_hz:.2f} Hz (drawn with the fitted "
+                        f"Q and gain; predicted Q {_q_text(result.prediction)})")
         ax_p.plot(ff, np.degrees(np.angle(pred * unwrap_m)), "--",
                   color=PALETTE["prediction"], lw=1.3)
     ax_m.set_ylabel("|H| inside/outside (dB)")
-    ax_m.legend(fontsize=7, frameon=False, loc="upper right")
     name = result.object.name if result.object is not None else Path(result.input.recording).name
     ax_m.set_title(f"{name}: inside/outside transfer function", fontsize=10,
                    color=PALETTE["ink"], loc="left")
@@ -108,15 +188,18 @@ def response_plot(result: Result, path: str | Path) -> Path:
         sig = tf.sigma(np.abs(mb), idx) / np.sqrt(2)
         with np.errstate(divide="ignore", invalid="ignore"):
             r = (hb - mb) / sig
-        ax_r.plot(fb, r.real, ".", ms=2.5, color=PALETTE["ink"], label="real")
-        ax_r.plot(fb, r.imag, ".", ms=2.5, color=PALETTE["fit"], label="imag")
+        ax_r.plot(fb, r.real, ".", ms=2.5, color=PALETTE["ink"], label="residual, real part")
+        ax_r.plot(fb, r.imag, ".", ms=2.5, color=PALETTE["fit"],
+                  label="residual, imaginary part")
         ax_r.axhline(0, color=PALETTE["muted"], lw=0.8)
-        ax_r.legend(fontsize=7, frameon=False, ncol=2, loc="upper right")
     ax_r.set_ylabel("residual (σ)")
     ax_r.set_xlabel("frequency (Hz)")
-    if f.size and f[-1] / max(f[0], 1e-9) > 10:
+    if f.size and f[0] > 0:
         ax_r.set_xscale("log")
-    fig.tight_layout()
+        ax_r.set_xlim(f[0], f[-1])
+        frequency_axis(ax_r)
+    # one legend for every panel, under the figure (never over the data)
+    legend_outside(fig, panels)
     return _save(fig, path)
 
 
@@ -134,14 +217,15 @@ def decay_plot(result: Result, path: str | Path) -> Path:
         seg = x[i0:i1] if x is not None else np.zeros(t.size)
         tau = d["q"] / (np.pi * d["f0_hz"])
         env = d["amplitude"] * np.exp(-t / tau)
-        ax.plot(1000 * t, seg, color=PALETTE["ink"], lw=0.6, label="recorded")
+        first = ax is np.atleast_1d(axes)[0]
+        ax.plot(1000 * t, seg, color=PALETTE["ink"], lw=0.6,
+                label="recorded" if first else None)
         ax.plot(1000 * t, env, color=PALETTE["fit"], lw=1.4,
-                label=f"fit: f0 {d['f0_hz']:.2f} Hz, Q {d['q']:.1f}")
+                label="fitted envelope" if first else None)
         ax.plot(1000 * t, -env, color=PALETTE["fit"], lw=1.4)
         ax.set_ylabel("pressure (full scale)")
-        ax.legend(fontsize=7, frameon=False, loc="upper right")
-        ax.set_title(f"decay at {d['start_s']:.3f} s", fontsize=9, loc="left",
-                     color=PALETTE["ink"])
+        ax.set_title(f"decay at {d['start_s']:.3f} s: f0 {d['f0_hz']:.2f} Hz, Q {d['q']:.1f}",
+                     fontsize=9, loc="left", color=PALETTE["ink"])
     np.atleast_1d(axes)[-1].set_xlabel("time after the start of the fitted stretch (ms)")
-    fig.tight_layout()
+    legend_outside(fig, axes)
     return _save(fig, path)

@@ -11,7 +11,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from .plots import PALETTE, _figure, _save
+from .plots import PALETTE, _figure, _save, frequency_axis, legend_outside
 
 if TYPE_CHECKING:
     from ..tuning import LevelStudy, PowerLawFit, SeriesFit
@@ -60,18 +60,17 @@ def series_plot(fit: SeriesFit, path: str | Path) -> Path:
         title = "fill series: 1/f0² = (4π²L_eff/(S c²)) (V0 − v)"
     _title(ax, title)
     ax.set_ylabel("1/f0² (ms²)")
-    ax.legend(fontsize=7, frameon=False, loc="upper left")
     ax_r.axhline(0, color=PALETTE["muted"], lw=0.8)
     for lim in (-3, 3):
         ax_r.axhline(lim, color=PALETTE["band"], lw=1.0)
     if np.any(np.isfinite(t)):
         ax_r.plot(x, t, "o", ms=4, color=PALETTE["ink"])
-        ax_r.set_ylabel("studentized residual (1)")
+        ax_r.set_ylabel("studentized residual")
     else:
         ax_r.plot(x, np.array(line.normalized_residuals), "o", ms=4, color=PALETTE["ink"])
         ax_r.set_ylabel("residual (σ)")
     ax_r.set_xlabel(xlabel)
-    fig.tight_layout()
+    legend_outside(fig, [ax, ax_r])
     return _save(fig, path)
 
 
@@ -101,13 +100,12 @@ def levels_plot(study: LevelStudy, path: str | Path) -> Path:
                      label=f"onset {study.onset_spl_db:.2f} ± {study.onset_spl_stderr_db:.2f} dB")
     ax_q.errorbar(spl, q, yerr=sq, fmt="o", ms=4, color=PALETTE["ink"], capsize=2,
                   label="measured")
-    ax_q.set_ylabel("Q (1)")
-    ax_q.legend(fontsize=7, frameon=False, loc="lower left")
+    ax_q.set_ylabel("Q")
     _title(ax_q, "drive-level study: Q and f0 against cavity SPL")
     ax_f.errorbar(spl, f0, yerr=sf, fmt="o-", ms=4, lw=0.8, color=PALETTE["ink"], capsize=2)
     ax_f.set_ylabel("f0 (Hz)")
     ax_f.set_xlabel("cavity SPL (dB re 20 µPa)")
-    fig.tight_layout()
+    legend_outside(fig, [ax_q, ax_f])
     return _save(fig, path)
 
 
@@ -138,8 +136,13 @@ def power_law_plot(fit: PowerLawFit, path: str | Path) -> Path:
     top = ax.secondary_xaxis("top", functions=(pressure_to_spl_db, spl_to_pressure_pa))
     top.set_xlabel("cavity SPL (dB re 20 µPa)", fontsize=8, color=PALETTE["muted"])
     top.tick_params(colors=PALETTE["muted"], labelsize=8)
+    from matplotlib.ticker import FuncFormatter, MultipleLocator
+
+    top.xaxis.set_major_locator(MultipleLocator(10.0))  # dB: every 10 dB
+    top.xaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
     ax.set_ylabel("steady force (N)")
-    ax.legend(fontsize=7, frameon=False, loc="upper left")
     _title(ax, "steady force against drive level")
-    fig.tight_layout()
+    frequency_axis(ax)
+    frequency_axis(ax, "y")
+    legend_outside(fig, [ax])
     return _save(fig, path)

@@ -34,10 +34,26 @@ def _finite(x: float) -> bool:
     return x == x
 
 
-def _title(source: str, kind: str) -> str:
-    """The report's title: the table's folder and name ("level-series/manifest.csv")."""
+def _title(source: str, kind: str, obj: dict[str, Any] | None = None) -> str:
+    """The report's title: the object's name, else the table's folder and name
+    ("level-series/manifest.csv")."""
+    if obj and obj.get("name"):
+        return str(obj["name"])
     parts = Path(source).parts[-2:]
     return "/".join(parts) or kind
+
+
+def _object_table(obj: dict[str, Any] | None, air_note: str | None = None) -> tuple[Table, ...]:
+    """The object (name, shape, every dimension with its unit) as a table, or a
+    one-row table saying that the input named none."""
+    from .values import object_rows
+
+    rows = object_rows(obj)
+    if air_note:
+        rows.append(("air", air_note))
+    if not rows:
+        rows = [("object", "not named in the input")]
+    return (Table("The object", ("item", "value"), tuple(rows)),)
 
 
 # ------------------------------------------------------------------ series
@@ -96,7 +112,8 @@ def series_text(s: SeriesFit) -> str:
     return "\n".join(lines + flag_lines(s.flags))
 
 
-def series_page(s: SeriesFit, source: str, png: bytes | None = None) -> Page:
+def series_page(s: SeriesFit, source: str, png: bytes | None = None,
+                obj: dict[str, Any] | None = None) -> Page:
     """report.html / report.pdf of a series read from ``source`` (``png``: series.png)."""
     trim = s.vary == "neck-length"
     label, scale = ("neck length (mm)", _MM) if trim else ("filled volume (mL)", _ML)
@@ -125,9 +142,12 @@ def series_page(s: SeriesFit, source: str, png: bytes | None = None) -> Page:
                  else "equal weights")]
     if failures:
         settings.append(("items not measured", "; ".join(failures)))
-    return Page(kind=f"{kind} report", title=_title(source, kind),
+    air = (f"f0 brought to {s.reference_temperature_c:.1f} °C (c = "
+           f"{s.reference_speed_of_sound_m_s:.2f} m/s)")
+    return Page(kind=f"{kind} report", title=_title(source, kind, obj),
                 subtitle=f"{source} · {len(s.points)} points",
-                lead=tuple(ln.strip() for ln in series_lines(s)), tables=(table,),
+                lead=tuple(ln.strip() for ln in series_lines(s)),
+                tables=(table, *_object_table(obj, air)),
                 figure=figure, flags=tuple(s.flags), settings=tuple(settings))
 
 
@@ -168,7 +188,8 @@ def levels_text(s: LevelStudy) -> str:
     return "\n".join(lines + flag_lines(s.flags))
 
 
-def levels_page(s: LevelStudy, source: str, png: bytes | None = None) -> Page:
+def levels_page(s: LevelStudy, source: str, png: bytes | None = None,
+                obj: dict[str, Any] | None = None) -> Page:
     """report.html / report.pdf of a level study read from ``source`` (``png``: levels.png)."""
     rows = tuple((p.id, fmt(p.spl_db, ".1f"), p.spl_source, fmt(p.f0_hz, ".3f"),
                   fmt(p.f0_stderr_hz, ".3f"), fmt(p.q, ".2f"), fmt(p.q_stderr, ".2f"),
@@ -188,7 +209,7 @@ def levels_page(s: LevelStudy, source: str, png: bytes | None = None) -> Page:
              f"against cavity SPL below",
         "Q and f0 against cavity SPL; fitted level model (line).")
     return _level_page(source, "level study report", table, figure, s.flags,
-                       levels_lines(s), s.points[-1].spl_db, s.failures)
+                       levels_lines(s), s.points[-1].spl_db, s.failures, obj)
 
 
 def power_law_lines(p: PowerLawFit) -> list[str]:
@@ -230,15 +251,16 @@ def power_law_page(p: PowerLawFit, source: str, png: bytes | None = None) -> Pag
 
 
 def _level_page(source: str, kind: str, table: Table, figure: Figure | None, flags: Any,
-                lines: list[str], top_spl_db: float, failures: Any) -> Page:
+                lines: list[str], top_spl_db: float, failures: Any,
+                obj: dict[str, Any] | None = None) -> Page:
     settings = [("table", source), ("highest cavity SPL (dB re 20 µPa)", fmt(top_spl_db, ".1f"))]
     if failures:
         settings.append(("items not measured", "; ".join(
             f"{f.get('id', '?')}: {f.get('reason', '')}" for f in failures)))
-    return Page(kind=kind, title=_title(source, kind), subtitle=source,
+    return Page(kind=kind, title=_title(source, kind, obj), subtitle=source,
                 lead=tuple(ln.strip() for ln in lines),
                 caution=LEVELS_CAUTION if top_spl_db >= CAUTION_SPL_DB else None,
-                tables=(table,), figure=figure, flags=tuple(flags), settings=tuple(settings))
+                tables=(table, *_object_table(obj)), figure=figure, flags=tuple(flags), settings=tuple(settings))
 
 
 def write_study_reports(page: Page, html_path: str | Path, pdf_path: str | Path) -> list[Path]:
