@@ -168,9 +168,11 @@ def comparison_text(comp: Comparison) -> str:
     ref = comp.items[0].label
     lines = [f"{len(comp.items)} results; differences from {ref}:"]
     for r in comp.rows:
+        qp = q_predicted_text({"q_predicted": r["predicted_q"],
+                               "q_predicted_range": r["predicted_q_range"]})
         pred = "" if r["predicted_f0_hz"] is None else (
             f"; predicted f0 {r['predicted_f0_hz']:.2f} Hz ({100 * r['f0_vs_predicted']:+.2f} %)"
-            f", Q {q_predicted_text({'q_predicted': r['predicted_q'], 'q_predicted_range': r['predicted_q_range']})}")  # noqa: E501
+            f", Q {qp}")
         lines.append(f"  {r['label']}: f0 {pm(r['f0_hz'], r['f0_stderr_hz'])} Hz, "
                      f"Q {pm(r['q'], r['q_stderr'])} ({r['method']}, "
                      f"{_num(r['temperature_c'], '.1f')} °C){pred}")

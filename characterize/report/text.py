@@ -60,9 +60,11 @@ def summary(doc: dict[str, Any]) -> str:
         lines.append(f"  from {len(decays)} free decay(s) (damped-sinusoid fit, matrix-pencil "
                      "start values)")
     else:
+        delay_err = (None if fit.get("delay_stderr_s") is None
+                     else 1e6 * fit["delay_stderr_s"])
         lines += [
             f"  gain = {pm(fit['gain'], fit.get('gain_stderr'), 4)} ({GAIN_MEANING})",
-            f"  delay = {pm(1e6 * fit['delay_s'], None if fit.get('delay_stderr_s') is None else 1e6 * fit['delay_stderr_s'], 1)} µs ({DELAY_MEANING})",  # noqa: E501
+            f"  delay = {pm(1e6 * fit['delay_s'], delay_err, 1)} µs ({DELAY_MEANING})",
             f"  fit band {fit['band_hz'][0]:.1f} to {fit['band_hz'][1]:.1f} Hz, "
             f"{fit['n_points']} points, reduced chi-square {fit['reduced_chi2']:.2f}"
             + ("" if fit.get("weighting") != "residuals" else " (errors from the residuals)"),

@@ -260,7 +260,8 @@ def _level_page(source: str, kind: str, table: Table, figure: Figure | None, fla
     return Page(kind=kind, title=_title(source, kind, obj), subtitle=source,
                 lead=tuple(ln.strip() for ln in lines),
                 caution=LEVELS_CAUTION if top_spl_db >= CAUTION_SPL_DB else None,
-                tables=(table, *_object_table(obj)), figure=figure, flags=tuple(flags), settings=tuple(settings))
+                tables=(table, *_object_table(obj)), figure=figure, flags=tuple(flags),
+                settings=tuple(settings))
 
 
 def write_study_reports(page: Page, html_path: str | Path, pdf_path: str | Path) -> list[Path]:
