@@ -712,6 +712,8 @@ class ItemOutcome:
     q_stderr: float | None = None
     predicted_f0_hz: float | None = None
     mismatch: float | None = None
+    predicted_q: float | None = None
+    predicted_q_range: tuple[float, float] | None = None
     method: str | None = None
     flags: tuple[str, ...] = ()
     outlier: tuple[str, ...] = ()
@@ -720,6 +722,8 @@ class ItemOutcome:
         d = asdict(self)
         for k in ("reasons", "warnings", "flags", "outlier"):
             d[k] = list(d[k])
+        if d.get("predicted_q_range") is not None:
+            d["predicted_q_range"] = list(d["predicted_q_range"])
         return d
 
 
@@ -894,6 +898,9 @@ def outcome(item: ManifestItem, doc: dict[str, Any], spec: Spec) -> ItemOutcome:
         **common,  # type: ignore[arg-type]
         f0_hz=fit.get("f0_hz"), f0_stderr_hz=fit.get("f0_stderr_hz"), q=fit.get("q"),
         q_stderr=fit.get("q_stderr"), predicted_f0_hz=pred.get("f0_hz"),
+        predicted_q=pred.get("q_predicted"),
+        predicted_q_range=(None if not pred.get("q_predicted_range") else
+                           tuple(sorted(pred["q_predicted_range"]))),  # type: ignore[arg-type]
         mismatch=mismatch(doc), method=(doc.get("input") or {}).get("method"),
         flags=tuple(f.get("code", "?") for f in doc.get("flags", [])))
 

@@ -225,3 +225,27 @@ def test_histogram_coloured_by_the_quantity_shown():
     summary = SimpleNamespace(items=items)
     assert _values(summary, "f0_hz", 238.0, 248.0) == ([243.0, 243.5], [260.0])
     assert _values(summary, "q", 25.0, 70.0) == ([40.0, 40.0], [10.0])
+
+
+def test_batch_outputs_carry_predicted_q(tmp_path):
+    import csv
+    import shutil
+
+    src = EXAMPLES / "batch"
+    for name in ("spec.toml", "reed-walk-jar.toml", "sweep-16k.wav", "sweep-16k.toml",
+                 "jar-01.flac"):
+        shutil.copy(src / name, tmp_path / name)
+    (tmp_path / "m.csv").write_text("id,recording\njar-01,jar-01.flac\n", encoding="utf-8")
+    CliRunner().invoke(main, ["batch", str(tmp_path / "m.csv"), "--spec",
+                              str(tmp_path / "spec.toml"), "--out", str(tmp_path / "o"),
+                              "--workers", "1"])
+    item = json.loads((tmp_path / "o" / "items" / "jar-01.json").read_text())
+    pred = item["prediction"]
+    with open(tmp_path / "o" / "summary.csv", encoding="utf-8") as fh:
+        row = next(r for r in csv.DictReader(line for line in fh if not line.startswith("#")))
+    assert float(row["predicted_q"]) == pytest.approx(pred["q_predicted"], rel=1e-12)
+    assert float(row["predicted_q_low"]) == pytest.approx(min(pred["q_predicted_range"]))
+    lo, hi = sorted(pred["q_predicted_range"])
+    want = f"predicted Q {pred['q_predicted']:.3g} (range {lo:.3g} to {hi:.3g})"
+    assert want in _html_text(tmp_path / "o" / "report.html")
+    assert want in _pdf_text(tmp_path / "o" / "report.pdf")

@@ -42,6 +42,9 @@ SUMMARY_COLUMNS: tuple[tuple[str, str], ...] = (
     ("recording", "recording, as written in the manifest"),
     ("note", "the manifest's note"),
     ("document", "the item's result document, relative to the output folder"),
+    ("predicted_q", "Q predicted from the geometry"),
+    ("predicted_q_low", "low end of the predicted Q range"),
+    ("predicted_q_high", "high end of the predicted Q range"),
 )
 
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
@@ -70,6 +73,9 @@ def summary_rows(summary: BatchSummary) -> list[list[str]]:
             _num(None if it.mismatch is None else 100 * it.mismatch), it.method or "",
             " ".join(it.outlier), _text("; ".join(it.reasons)), _text("; ".join(it.warnings)),
             " ".join(it.flags), _text(it.recording), _text(it.note), it.document,
+            _num(it.predicted_q),
+            _num(None if it.predicted_q_range is None else it.predicted_q_range[0]),
+            _num(None if it.predicted_q_range is None else it.predicted_q_range[1]),
         ])
     return rows
 

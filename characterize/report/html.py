@@ -208,7 +208,8 @@ spec ({{ band }} for f0)</caption>
 <span class="status status-{{ it.status }}">{{ it.status_text }}</span></h3>
 <p>{% if it.status != "error" %}f0 {{ it.f0 }} ± {{ it.f0_se }} Hz,
 Q {{ it.q }} ± {{ it.q_se }}{% if it.pred %}, predicted f0 {{ it.pred }} Hz
-({{ it.mismatch }} %){% endif %}; {% endif %}recording
+({{ it.mismatch }} %){% endif %}{% if it.pred_q %}, predicted Q {{ it.pred_q }}{% endif %};
+{% endif %}recording
 <span class="small">{{ it.recording }}</span>{% if it.note %}; note: {{ it.note }}{% endif %}</p>
 {% if it.reasons %}<ul class="reasons">
 {% for r in it.reasons %}<li>{{ r }}</li>{% endfor %}</ul>{% endif %}
@@ -253,7 +254,7 @@ def context(summary: BatchSummary, out_dir: str | Path, figures: dict[str, bytes
     ``embed=False`` leaves the item plots out (``plot`` keeps their path).
     """
     from ..batch import OUTLIER_MODIFIED_Z, _now
-    from .values import object_text_from_file
+    from .values import object_text_from_file, q_predicted_text
 
     spec, st = summary.spec, summary.stats
     out = Path(out_dir)
@@ -274,6 +275,8 @@ def context(summary: BatchSummary, out_dir: str | Path, figures: dict[str, bytes
             "f0_se": _f(it.f0_stderr_hz, ".3f"), "q": _f(it.q, ".1f"),
             "q_se": _f(it.q_stderr, ".2f"), "dev": _f(dev, "+.2f"),
             "pred": None if it.predicted_f0_hz is None else _f(it.predicted_f0_hz, ".2f"),
+            "pred_q": q_predicted_text({"q_predicted": it.predicted_q,
+                                        "q_predicted_range": it.predicted_q_range}),
             "mismatch": _f(None if it.mismatch is None else 100 * it.mismatch, "+.2f"),
             "reasons": list(it.reasons), "warnings": list(it.warnings),
             "outlier": ", ".join(it.outlier), "recording": it.recording, "note": it.note,

@@ -314,7 +314,9 @@ def _draw_item_pages(pages: _Pages, fig: Any, slots: list[Any], page_no: Any,
 def _item_lines(it: dict[str, Any], width: int = 110, max_lines: int = 7) -> list[str]:
     first = (f"f0 {it['f0']} ± {it['f0_se']} Hz ({it['dev']} % from the target), Q {it['q']} "
              f"± {it['q_se']}" + (f", predicted f0 {it['pred']} Hz ({it['mismatch']} %)"
-                                  if it["pred"] else "")) if it["status"] != "error" else ""
+                                  if it["pred"] else "")
+             + (f", predicted Q {it['pred_q']}" if it.get("pred_q") else "")
+             ) if it["status"] != "error" else ""
     parts = [first] if first else []
     parts.append(f"recording {it['recording']}" + (f"; note: {it['note']}" if it["note"] else ""))
     parts += [f"- {r}" for r in it["reasons"]]
