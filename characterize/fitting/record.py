@@ -243,17 +243,24 @@ def record_transfer_fit(inside: NDArray[np.floating], outside: NDArray[np.floati
         fr = float(f0)
         u = (fb - fr) / fr
         if p is None:
-            r0 = oscillator(fb, f0, q) * np.exp(-2j * np.pi * fb * tau0)
-            a = np.stack([r0, r0 * u], axis=1)
-            c, *_ = np.linalg.lstsq(a, yb - sign * g_abs * r0 * xb, rcond=None)
-            p = np.array([f0, q, sign * g_abs, tau0, c[0].real, c[0].imag, c[1].real, c[1].imag])
-            e = yb - (sign * g_abs * r0 * xb + r0 * (c[0] + c[1] * u))
-            v0 = float(np.mean(np.abs(e) ** 2))
-            m0 = float(np.mean(np.abs(sign * g_abs * r0) ** 2))
-            sy2, sx2 = 0.5 * v0, 0.5 * v0 / max(m0, 1e-30)
+            # the delay and sign read off the smoothed estimate, and no delay with
+            # either sign: over a narrow band a wrong pair can mimic the right one,
+            # so the first pass starts from each and keeps the best
+            starts = []
+            for tau_c, sign_c in ((tau0, sign), (0.0, 1.0), (0.0, -1.0)):
+                r0 = oscillator(fb, f0, q) * np.exp(-2j * np.pi * fb * tau_c)
+                a = np.stack([r0, r0 * u], axis=1)
+                c, *_ = np.linalg.lstsq(a, yb - sign_c * g_abs * r0 * xb, rcond=None)
+                starts.append(np.array([f0, q, sign_c * g_abs, tau_c, c[0].real, c[0].imag,
+                                        c[1].real, c[1].imag]))
+                if len(starts) == 1:
+                    e = yb - (sign_c * g_abs * r0 * xb + r0 * (c[0] + c[1] * u))
+                    v0 = float(np.mean(np.abs(e) ** 2))
+                    m0 = float(np.mean(np.abs(g_abs * r0) ** 2))
+                    sy2, sx2 = 0.5 * v0, 0.5 * v0 / max(m0, 1e-30)
         else:
             # the transient's polynomial is centred on the previous pass's f0
-            p = p.copy()
+            starts = [p.copy()]
 
         def parts(pp: NDArray[np.float64], fb: NDArray[np.float64] = fb,
                   xb: NDArray[np.complex128] = xb, u: NDArray[np.float64] = u
@@ -271,8 +278,13 @@ def record_transfer_fit(inside: NDArray[np.floating], outside: NDArray[np.floati
             return fun
 
         resid = residual(sy2, sx2)
-        sol = least_squares(resid, p, method="lm", x_scale="jac", ftol=1e-10, xtol=1e-10,
-                            gtol=1e-10, max_nfev=4000)
+        sol = None
+        for start in starts:
+            trial = least_squares(resid, start, method="lm", x_scale="jac", ftol=1e-10,
+                                  xtol=1e-10, gtol=1e-10, max_nfev=4000)
+            if sol is None or trial.cost < sol.cost:
+                sol = trial
+        assert sol is not None
         p = sol.x
         m, pred = parts(p)
         sy2, sx2 = _noise_levels(np.abs(yb - pred) ** 2, np.abs(m) ** 2, sy2, sx2)
