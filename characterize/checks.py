@@ -64,6 +64,12 @@ METHODS_DISAGREE_F0_REL = 0.002
 METHODS_DISAGREE_Q_REL = 0.05
 
 
+#: The accuracy the tool promises on a clean take (DESIGN.md §4, issue 11): a fit
+#: whose 2-sigma interval is wider than this says so (imprecise).
+ACCURACY_F0_REL = 0.001
+ACCURACY_Q_REL = 0.03
+
+
 @dataclass(frozen=True, slots=True)
 class Flag:
     code: str
@@ -338,3 +344,17 @@ def check_geometry(obj: Any, prediction: Prediction) -> list[Flag]:
     return [Flag("geometry-implausible", "warning",
                  "; ".join(out) + ": check the units in the object file (mm, not Mm; mL, "
                  "not ML)")]
+
+
+def check_precision(fit: FitResult) -> list[Flag]:
+    """The data cannot support the promised accuracy: the 2-sigma interval of f0
+    or Q is wider than ``ACCURACY_F0_REL`` / ``ACCURACY_Q_REL`` of the value."""
+    rf = 2 * fit.f0_stderr_hz / fit.f0_hz if fit.f0_hz > 0 else math.inf
+    rq = 2 * fit.q_stderr / fit.q if fit.q > 0 else math.inf
+    if not (rf > ACCURACY_F0_REL or rq > ACCURACY_Q_REL):
+        return []
+    return [Flag("imprecise", "warning",
+                 f"the data hold f0 to {100 * rf:.2g} % and Q to {100 * rq:.2g} % (2 sigma), "
+                 f"wider than the {100 * ACCURACY_F0_REL:g} % and {100 * ACCURACY_Q_REL:g} % "
+                 "a clean take gives: record longer or louder (or more taps); the errors "
+                 "are honest, the numbers less precise")]

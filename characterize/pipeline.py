@@ -47,6 +47,7 @@ from .checks import (
     check_multiple_peaks,
     check_nonlinear_drive,
     check_polarity,
+    check_precision,
     check_signal_quality,
     check_weighting,
     check_window,
@@ -496,6 +497,8 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
     quality = signal_quality(tf, fit)
 
     flags += check_fit_quality(fit)
+    if record_fit is not None or chosen == "csv":
+        flags += check_precision(fit)
     flags += check_in_band(fit, tf.excited_band_hz)
     flags += check_band_edge(fit, tf.excited_band_hz)
     flags += check_low_q(fit)
@@ -657,6 +660,7 @@ def _ringdown(rec: Recording, channel: int, obj: ResonatorObject | None, air: Ai
                     weighting="noise-estimate", correlation_f0_q=math.nan, nfev=0,
                     method="damped-sinusoid")
     flags += check_fit_quality(fit)
+    flags += check_precision(fit)
     prediction, derived, used_tol = _geometry(obj, air, fit, flags, tolerance)
     info = InputInfo(recording=str(rec.path), sample_rate_hz=rec.sample_rate_hz,
                      inside_channel=channel, outside_channel=None, method="ringdown",

@@ -25,6 +25,11 @@ from ..errors import FitError
 
 #: A decay must start this many dB above the noise floor to be fitted.
 MIN_DECAY_DB = 20.0
+#: A fitted decay must hold this many periods of its frequency, and its f0 be
+#: known to this fraction, to enter the combined result (a cut-off scrap of a
+#: decay or a click gives numbers that mean nothing).
+MIN_DECAY_CYCLES = 3.0
+MAX_DECAY_F0_REL_STDERR = 0.01
 #: The fitted stretch ends where the envelope is this many dB above the noise.
 END_ABOVE_NOISE_DB = 6.0
 #: Skip this much after the peak (the excitation itself) before fitting (s).
@@ -101,10 +106,13 @@ def _envelope(x: NDArray[np.float64], rate_hz: float) -> NDArray[np.float64]:
 
 def find_decays(x: NDArray[np.float64], rate_hz: float) -> list[tuple[int, int, float]]:
     """Stretches (start, stop, noise rms) of free decays: the envelope rises at least
-    ``MIN_DECAY_DB`` above the noise floor (its 10th percentile), then falls back."""
+    ``MIN_DECAY_DB`` above the noise floor (its 10th percentile), then falls back; a
+    stretch ends early where a new event (the envelope rising to twice its lowest
+    value since the peak: another tap inside the decay) begins."""
     env = _envelope(x, rate_hz)
-    floor = float(np.percentile(env, 10))
-    noise_rms = max(float(np.std(x[env <= np.percentile(env, 10)])), 1e-12)
+    p10 = np.percentile(env, 10)
+    floor = float(p10)
+    noise_rms = max(float(np.std(x[env <= p10])), 1e-12)
     if floor <= 0:
         floor = noise_rms
     thr_on = floor * 10 ** (MIN_DECAY_DB / 20)
@@ -113,6 +121,7 @@ def find_decays(x: NDArray[np.float64], rate_hz: float) -> list[tuple[int, int, 
     i = 0
     n = x.size
     skip = int(SKIP_AFTER_PEAK_S * rate_hz)
+    k = max(3, int(rate_hz * 0.005))  # the envelope's smoothing
     while i < n:
         above = np.flatnonzero(env[i:] > thr_on)
         if above.size == 0:
@@ -122,10 +131,16 @@ def find_decays(x: NDArray[np.float64], rate_hz: float) -> list[tuple[int, int, 
         below = np.flatnonzero(env[j:] < thr_end)
         stop = j + int(below[0]) if below.size else n
         peak = j + int(np.argmax(np.abs(x[j:stop])))
+        seg = env[peak:stop]
+        new = np.flatnonzero((seg > 2 * np.minimum.accumulate(seg)) & (seg > thr_on))
+        following = None
+        if new.size and int(new[0]) - 2 * k > skip + 4 * k:
+            following = peak + int(new[0]) - 2 * k  # before the envelope's smoothing
+            stop = following
         start = peak + skip
         if stop - start > max(32, int(MIN_DECAY_S * rate_hz)):
             out.append((start, stop, noise_rms))
-        i = stop + 1
+        i = max(stop if following is None else following, j) + 1
     return out
 
 
@@ -201,11 +216,16 @@ def fit_ringdown(x: NDArray[np.float64], rate_hz: float, source: str = "recordin
     decays = []
     for start, stop, noise in stretches:
         try:
-            decays.append(fit_decay(x[start:stop], rate_hz, noise, start))
+            d = fit_decay(x[start:stop], rate_hz, noise, start)
         except FitError:
             continue
+        if (d.length_s * d.f0_hz >= MIN_DECAY_CYCLES and math.isfinite(d.f0_stderr_hz)
+                and d.f0_stderr_hz <= MAX_DECAY_F0_REL_STDERR * d.f0_hz):
+            decays.append(d)
     if not decays:
-        raise FitError("decays were found but none could be fitted")
+        raise FitError(f"{source}: decays were found but none could be fitted (each must "
+                       f"hold {MIN_DECAY_CYCLES:g} periods and give f0 to "
+                       f"{100 * MAX_DECAY_F0_REL_STDERR:g} %)")
     return decays
 
 
