@@ -160,3 +160,21 @@ def test_refusals(tmp_path: Path) -> None:
                              noise_duration_s=2.0, snr_db=40.0), seed=3)
     with pytest.raises(FitError):
         analyze(_write(tmp_path, "cut.wav", data[: int(0.01 * fs)]))
+
+
+def test_imprecise_flag() -> None:
+    """checks.check_precision: a 2-sigma interval wider than the bar (0.1 % in f0,
+    3 % in Q; DESIGN.md §4) is a warning; one just inside it is not."""
+    from characterize.checks import check_precision
+    from characterize.fitting.fit import FitResult
+
+    def fit(f0_se: float, q_se: float) -> FitResult:
+        return FitResult(f0_hz=100.0, f0_stderr_hz=f0_se, q=20.0, q_stderr=q_se, gain=1.0,
+                         gain_stderr=0.0, delay_s=0.0, delay_stderr_s=0.0,
+                         polarity_inverted=False, band_hz=(90.0, 110.0), n_points=100,
+                         chi2=200.0, reduced_chi2=1.0, stderr_scale=1.0,
+                         weighting="noise-estimate", correlation_f0_q=0.0, nfev=1)
+
+    assert check_precision(fit(0.049, 0.29)) == []
+    assert [f.code for f in check_precision(fit(0.051, 0.1))] == ["imprecise"]
+    assert [f.severity for f in check_precision(fit(0.01, 0.31))] == ["warning"]
