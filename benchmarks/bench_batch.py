@@ -37,6 +37,7 @@ def main() -> None:
     import soundfile as sf
 
     from characterize import batch as B
+    from characterize.batch import runner as R
     from characterize.excitation import SweepParams, make_sweep, sidecar_text
     from characterize.simulate import Setup, simulate, write_recording
 
@@ -66,14 +67,14 @@ def main() -> None:
         manifest = B.read_manifest(tmp / "manifest.csv", spec)
 
         # 1. single-item time in this process (imports and fonts loaded first)
-        B._init_worker()
+        R._init_worker()
         single_dir = tmp / "single" / "items"
         single_dir.mkdir(parents=True)
         times, cpu = [], []
         for item in manifest.items[: opts.sample + 1]:
-            task = B._Task(item, B._settings(item, spec), str(single_dir))
+            task = R._Task(item, R._settings(item, spec), str(single_dir))
             t, c = time.perf_counter(), time.process_time()
-            B._work(task)
+            R._work(task)
             times.append(time.perf_counter() - t)
             cpu.append(time.process_time() - c)
         single = statistics.median(times[1:])  # the first is a warm-up

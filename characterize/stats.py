@@ -208,3 +208,115 @@ def ratio_with_stderr(num: float, den: float, var_num: float, var_den: float,
     r = num / den
     var = var_num / den**2 + num**2 * var_den / den**4 - 2.0 * num * cov / den**3
     return r, math.sqrt(max(var, 0.0))
+
+
+#: Modified z-score beyond which a value is an outlier (Iglewicz & Hoaglin 1993).
+OUTLIER_MODIFIED_Z = 3.5
+
+
+#: d2 for moving ranges of two (control-chart constant, common practice).
+D2_MOVING_RANGE = 1.128
+
+
+def sample_std(values: Sequence[float]) -> float | None:
+    """Sample standard deviation (n - 1 in the denominator); None for n < 2."""
+    n = len(values)
+    if n < 2:
+        return None
+    m = sum(values) / n
+    return math.sqrt(sum((v - m) ** 2 for v in values) / (n - 1))
+
+
+def process_capability(values: Sequence[float], lower: float, upper: float
+                       ) -> tuple[float | None, float | None]:
+    r"""Process capability indices Cp and Cpk of values against two limits.
+
+    .. math::
+
+        C_p = \frac{USL - LSL}{6 s}, \qquad
+        C_{pk} = \frac{\min(USL - \bar x,\ \bar x - LSL)}{3 s}
+
+    with :math:`\bar x` the mean and :math:`s` the sample standard deviation
+    (n - 1), the usual formula in quality engineering (common practice; with
+    the overall s, some texts call the same number Ppk).
+
+    Parameters
+    ----------
+    values : sequence of float
+        Measured values (here f0 in Hz).
+    lower, upper : float
+        Specification limits LSL and USL, same unit as the values.
+
+    Returns
+    -------
+    (Cp, Cpk) : floats (dimensionless), or None when fewer than two values or
+    no spread.
+
+    References
+    ----------
+    Kane, V. E. (1986). Process capability indices. Journal of Quality
+    Technology 18(1), 41-52.
+    """
+    s = sample_std(values)
+    if s is None or s == 0:
+        return None, None
+    m = sum(values) / len(values)
+    return (upper - lower) / (6 * s), min(upper - m, m - lower) / (3 * s)
+
+
+def modified_z_scores(values: Sequence[float]) -> list[float] | None:
+    r"""Modified z-scores for outlier labelling.
+
+    .. math::
+
+        M_i = \frac{0.6745\,(x_i - \tilde x)}{\mathrm{MAD}}, \qquad
+        \mathrm{MAD} = \operatorname{median}_i |x_i - \tilde x|
+
+    with :math:`\tilde x` the median; :math:`|M_i| > 3.5` labels an outlier.
+
+    Returns None when there are fewer than three values or the MAD is zero.
+
+    References
+    ----------
+    Iglewicz, B. and Hoaglin, D. C. (1993). How to Detect and Handle
+    Outliers. ASQC Basic References in Quality Control, vol. 16.
+    """
+    if len(values) < 3:
+        return None
+    med = _median(values)
+    mad = _median([abs(v - med) for v in values])
+    if mad == 0:
+        return None
+    return [0.6745 * (v - med) / mad for v in values]
+
+
+def _median(values: Sequence[float]) -> float:
+    s = sorted(values)
+    n = len(s)
+    return s[n // 2] if n % 2 else 0.5 * (s[n // 2 - 1] + s[n // 2])
+
+
+def individuals_limits(values: Sequence[float]) -> tuple[float, float, float, float] | None:
+    r"""Shewhart individuals control chart: centre line and 3-sigma limits.
+
+    .. math::
+
+        \hat\sigma = \frac{\overline{MR}}{d_2}, \quad d_2 = 1.128, \qquad
+        UCL, LCL = \bar x \pm 3\hat\sigma
+
+    with :math:`\overline{MR}` the mean moving range of successive values (in
+    manifest order). Returns ``(centre, lcl, ucl, sigma)`` in the values'
+    unit, or None for fewer than two values.
+
+    References
+    ----------
+    Montgomery, D. C. (2009). Introduction to Statistical Quality Control,
+    6th ed., Wiley, section 6.4 (control charts for individual measurements);
+    d2 = 1.128 for subgroups of two from its Appendix VI (from memory).
+    """
+    if len(values) < 2:
+        return None
+    mr = sum(abs(b - a) for a, b in zip(values[:-1], values[1:], strict=True)) / (len(values) - 1)
+    sigma = mr / D2_MOVING_RANGE
+    c = sum(values) / len(values)
+    return c, c - 3 * sigma, c + 3 * sigma, sigma

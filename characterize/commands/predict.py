@@ -187,7 +187,7 @@ def predict(object_path: Path, temperature_c: float | None, relative_humidity: f
             click.echo(line)
     for sk in (sketch_in_out, sketch_path):
         if sk is not None:
-            from ..physics.sketch import sketch_object
+            from ..report.sketch import sketch_object
 
             sketch_object(obj, sk, pred)
     if not as_json:

@@ -25,9 +25,8 @@ nonlinear
     :func:`~characterize.physics.nonlinear.drive_state`: neck motion from the cavity level.
 water
     Water density (Tanaka et al. 2001) for volumes measured by filling.
-sketch
-    To-scale drawing of an object (matplotlib through report.plots, lazily).
 
 This package imports only :mod:`characterize.units`, :mod:`characterize.errors`
-and numpy (sketch imports :mod:`characterize.report.plots` inside its function).
+and numpy (the to-scale sketch of an object is drawn in
+:mod:`characterize.report.sketch`).
 """

@@ -21,7 +21,7 @@ import numpy as np
 from .plots import PALETTE, _figure, _save
 
 if TYPE_CHECKING:
-    from ..batch import BatchSummary
+    from ..batchdata import BatchSummary
 
 #: File names of the batch plots under DIR/plots/.
 PLOT_FILES = {"f0_histogram": "f0-histogram.png", "q_histogram": "q-histogram.png",

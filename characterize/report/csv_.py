@@ -18,7 +18,7 @@ from typing import TYPE_CHECKING, Any
 from ..fileio import atomic_write_text
 
 if TYPE_CHECKING:
-    from ..batch import BatchSummary
+    from ..batchdata import BatchSummary
 
 #: (column, meaning). The unit is in the name: _hz in Hz, _percent in percent;
 #: q is dimensionless.

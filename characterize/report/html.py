@@ -22,7 +22,7 @@ from .. import __version__
 from ..fileio import atomic_write_text
 
 if TYPE_CHECKING:
-    from ..batch import BatchSummary
+    from ..batchdata import BatchSummary
 
 STATUS_TEXT = {"pass": "✓ PASS", "fail": "✗ FAIL", "error": "⚠ ERROR"}
 
@@ -253,7 +253,8 @@ def context(summary: BatchSummary, out_dir: str | Path, figures: dict[str, bytes
 
     ``embed=False`` leaves the item plots out (``plot`` keeps their path).
     """
-    from ..batch import OUTLIER_MODIFIED_Z, _now
+    from ..batchdata import timestamp_now
+    from ..stats import OUTLIER_MODIFIED_Z
     from .values import object_text_from_file, q_predicted_text
 
     spec, st = summary.spec, summary.stats
@@ -349,7 +350,7 @@ def context(summary: BatchSummary, out_dir: str | Path, figures: dict[str, bytes
         "pass_rate": f"pass rate {100 * st.pass_rate:.1f} %", "manifest": summary.manifest,
         "methods": ", ".join(f"{k}: {v}" for k, v in methods.items()) or "no results",
         "run": {"started": run.get("started", "—"), "finished": run.get("finished", "—")},
-        "written": _now(), "target": f"{target:.2f} Hz",
+        "written": timestamp_now(), "target": f"{target:.2f} Hz",
         "tolerance": f"{spec.f0_tolerance_hz:.2f} Hz", "band": band, "q_limits": q_limits,
         "mismatch_rule": ("not checked" if spec.max_mismatch is None else
                           f"measured f0 within ±{100 * spec.max_mismatch:g} % of the "

@@ -23,7 +23,7 @@ from .. import __version__
 from ..fileio import atomic_write
 
 if TYPE_CHECKING:
-    from ..batch import BatchSummary
+    from ..batchdata import BatchSummary
 
 A4_IN = (8.27, 11.69)
 ROWS_PER_PAGE = 34
@@ -351,13 +351,13 @@ def write_batch_pdf(summary: BatchSummary, out_dir: str | Path, path: str | Path
     """Write report.pdf atomically; the item plots are read from ``out_dir``."""
     from matplotlib.backends.backend_pdf import PdfPages
 
-    from ..batch import _now
+    from ..batchdata import timestamp_now
     from .html import context
 
     out = Path(out_dir)
     ctx = context(summary, out, {}, embed=False)
     total = page_count(len(summary.items))
-    written = _now()
+    written = timestamp_now()
 
     def w(tmp: str) -> None:
         with PdfPages(tmp, metadata={"Title": f"Batch report: {summary.spec.name}",

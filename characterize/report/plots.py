@@ -117,6 +117,22 @@ def _q_text(pred: Any) -> str:
     return f"{pred.q_predicted:.3g}, {lo:.3g} to {hi:.3g}"
 
 
+def warm_up() -> None:
+    """Load matplotlib's Agg backend and fonts once, drawing a throw-away figure
+    (a batch's worker processes then start warm)."""
+    import io
+
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    fig = plt.figure(figsize=(1, 1))
+    fig.text(0.5, 0.5, "f0 (Hz)")
+    fig.savefig(io.BytesIO(), format="png")
+    plt.close(fig)
+
+
 def response_plot(result: Result, path: str | Path) -> Path:
     """Magnitude and phase of the measured H with the fit and the prediction
     overlaid, the fit band shaded, and the normalised residuals below."""

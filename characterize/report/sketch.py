@@ -1,8 +1,9 @@
 """A to-scale sketch of an object: cavity, neck(s), end conditions and the
 end corrections (``characterize predict --sketch out.png``).
 
-matplotlib is imported lazily through the project's plot helpers
-(:mod:`characterize.report.plots`: palette, figure and atomic save).
+The outline is computed from the geometry (:mod:`characterize.physics`);
+matplotlib is imported lazily through :mod:`.plots` (palette, figure and
+atomic save).
 """
 
 from __future__ import annotations
@@ -12,8 +13,8 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 if TYPE_CHECKING:
-    from .geometry import ResonatorObject
-    from .helmholtz import Prediction
+    from ..physics.geometry import ResonatorObject
+    from ..physics.helmholtz import Prediction
 
 __all__ = ["sketch_object"]
 
@@ -80,8 +81,8 @@ def sketch_object(obj: ResonatorObject, path: str | Path,
     -------
     pathlib.Path
     """
-    from ..report.plots import PALETTE, _figure, _save
-    from .helmholtz import neck_end_corrections
+    from ..physics.helmholtz import neck_end_corrections
+    from .plots import PALETTE, _figure, _save
 
     neck = obj.neck
     ends = neck_end_corrections(obj)
