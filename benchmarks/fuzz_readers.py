@@ -83,7 +83,7 @@ class Checker:
         from characterize.audio import read_audio
         from characterize.errors import InputError
         from characterize.excitation import read_sidecar
-        from characterize.physics.geometry import load_object
+        from characterize.objectfile import load_object
 
         self.InputError = InputError
         self.fn = {"audio": read_audio, "object": load_object, "sidecar": read_sidecar}[target]

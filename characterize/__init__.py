@@ -14,5 +14,5 @@ Python entry points (everything the command line does):
 - :mod:`characterize.simulate` -- measurement-chain simulator with known truth.
 """
 
-__version__ = "0.1.0"
-SCHEMA = "characterize.result/1"
+from ._version import SCHEMA as SCHEMA
+from ._version import __version__ as __version__

@@ -10,7 +10,7 @@ import datetime as _dt
 from dataclasses import asdict, dataclass, field
 from typing import Any
 
-from . import __version__
+from ._version import __version__
 
 #: Schema of the batch summary (summary.json) and of an item's failure document.
 BATCH_SCHEMA = "characterize.batch/1"

@@ -12,11 +12,10 @@ from typing import Any
 
 import click
 
-from . import __version__
+from ._version import __version__
 from .commands._errors import handles_errors
 from .commands._params import FREQUENCY, LENGTH, SECONDS, Fraction, Level, Quantity, air_options
 from .errors import FitError, InputError
-
 
 #: Exit status after Ctrl-C (128 + SIGINT, the shell's convention), distinct from
 #: 1 (no fit, failed item) and 2 (bad input).

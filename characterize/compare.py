@@ -64,7 +64,7 @@ class Comparison:
     rows: tuple[dict[str, Any], ...] = field(default=())
 
     def to_dict(self) -> dict[str, Any]:
-        from . import __version__
+        from ._version import __version__
 
         return {"schema": COMPARISON_SCHEMA, "tool_version": __version__,
                 "reference": self.items[0].label,
@@ -88,7 +88,7 @@ def _diff(a: float, sa: Any, b: float, sb: Any) -> tuple[float, float | None]:
 def read_compared(path: str | Path, label: str | None = None) -> Compared:
     """A result document (a file, or a folder holding result.json) and the
     transfer.csv beside it when there is one."""
-    from . import SCHEMA
+    from ._version import SCHEMA
     from .fileio import read_text
 
     p = Path(path)
@@ -165,7 +165,7 @@ def comparison_rows(items: list[Compared] | tuple[Compared, ...]) -> list[dict[s
             k = c_ref / c
             sb = f.get("f0_stderr_hz")
             d, s = _diff(rf["f0_hz"], rf.get("f0_stderr_hz"), f["f0_hz"] * k,
-                         None if not _finite(sb) else float(sb) * k)
+                         None if not _finite(sb) else float(sb) * k)  # type: ignore[arg-type]
             row["delta_f0_same_air_hz"], row["delta_f0_same_air_stderr_hz"] = d, s
         else:
             row["delta_f0_same_air_hz"] = row["delta_f0_same_air_stderr_hz"] = None

@@ -28,7 +28,7 @@ from typing import Any
 
 import numpy as np
 
-from . import SCHEMA, __version__
+from ._version import SCHEMA, __version__
 from .audio import Recording, check_channel, check_not_silent, clip_report, read_audio
 from .checks import (
     F0_TOLERANCE,
@@ -37,10 +37,9 @@ from .checks import (
     check_clipping,
     check_drive,
     check_end_correction,
-    check_geometry,
-    check_q_mismatch,
     check_f0_mismatch,
     check_fit_quality,
+    check_geometry,
     check_in_band,
     check_low_q,
     check_methods_agree,
@@ -48,15 +47,17 @@ from .checks import (
     check_nonlinear_drive,
     check_polarity,
     check_precision,
+    check_q_mismatch,
     check_signal_quality,
     check_weighting,
     check_window,
 )
 from .errors import FitError, InputError
 from .fitting.fit import FitResult, fit_transfer
+from .objectfile import load_object
 from .physics.air import AirState
 from .physics.conditions import DEFAULT_AIR, resolve_air  # noqa: F401  (re-exported)
-from .physics.geometry import ResonatorObject, load_object
+from .physics.geometry import ResonatorObject
 from .physics.helmholtz import (
     PLAUSIBLE_END_CORRECTION_OVER_RADIUS,
     Derived,

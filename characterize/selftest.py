@@ -458,8 +458,7 @@ def _thirds(trials: Sequence[Trial], key: Callable[[Trial], float], edges: Seque
 
 def tabulate(plan: Plan, trials: Sequence[Trial], seconds: float = 0.0) -> SelfTestTable:
     """Statistics rows, accuracy and flag counts for finished ``trials``."""
-    from . import __version__
-
+    from ._version import __version__
     rows: list[Row] = []
     acc: list[Accuracy] = []
     flag_counts: dict[str, dict[str, int]] = {}

@@ -17,8 +17,8 @@ from pathlib import Path
 import soundfile as sf
 
 from characterize.excitation import SweepParams, make_sweep, sidecar_text
+from characterize.objectfile import load_object
 from characterize.physics.air import air_state
-from characterize.physics.geometry import load_object
 from characterize.physics.helmholtz import predict
 from characterize.simulate import Setup, simulate, write_recording
 

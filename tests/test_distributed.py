@@ -9,6 +9,7 @@ import pytest
 from scipy.optimize import brentq
 from scipy.special import jv
 
+from characterize.objectfile import parse_object
 from characterize.physics.air import AirState, air_state
 from characterize.physics.distributed import (
     Bore,
@@ -19,7 +20,6 @@ from characterize.physics.distributed import (
     resonances,
     transverse_cutoff_hz,
 )
-from characterize.physics.geometry import parse_object
 from characterize.physics.helmholtz import bore_from_object, predict
 
 # The physics sheet's air: dry air at 20 degC, 101325 Pa from CoolProp HEOS Air.

@@ -10,13 +10,8 @@ import re
 import pytest
 
 from characterize.errors import InputError
-from characterize.physics.geometry import (
-    END_CONDITIONS,
-    AirOverrides,
-    ResonatorObject,
-    load_object,
-    parse_object,
-)
+from characterize.objectfile import load_object, parse_object
+from characterize.physics.geometry import END_CONDITIONS, AirOverrides, ResonatorObject
 
 GOOD = """\
 name = "jar-07"

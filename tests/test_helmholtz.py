@@ -11,6 +11,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from characterize.objectfile import parse_object
 from characterize.physics import helmholtz
 from characterize.physics.air import AirState, air_state
 from characterize.physics.geometry import (
@@ -19,7 +20,6 @@ from characterize.physics.geometry import (
     Cavity,
     Neck,
     ResonatorObject,
-    parse_object,
 )
 from characterize.physics.helmholtz import (
     FLANGED_END_FACTOR,

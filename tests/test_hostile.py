@@ -28,7 +28,8 @@ from hypothesis import strategies as st
 from characterize.cli import main
 from characterize.errors import InputError
 from characterize.excitation import SweepParams, read_sidecar, sidecar_text, validate_params
-from characterize.physics.geometry import END_CONDITIONS, ResonatorObject, load_object, parse_object
+from characterize.objectfile import load_object, parse_object
+from characterize.physics.geometry import END_CONDITIONS, ResonatorObject
 from characterize.units import parse_fraction, parse_quantity, parse_temperature_c
 
 CI = settings(max_examples=60, deadline=None,

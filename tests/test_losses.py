@@ -9,9 +9,9 @@ import numpy as np
 import pytest
 from scipy.integrate import dblquad
 
+from characterize.objectfile import parse_object
 from characterize.physics import losses, radiation
 from characterize.physics.air import AirState
-from characterize.physics.geometry import parse_object
 from characterize.physics.radiation import (
     flanged_rectangle_end_correction_m,
     ingard_inner_end_correction_m,

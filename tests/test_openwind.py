@@ -30,15 +30,10 @@ import pytest
 
 openwind = pytest.importorskip("openwind")
 
+from characterize.objectfile import parse_object  # noqa: E402
 from characterize.physics.air import AirState  # noqa: E402
 from characterize.physics.distributed import find_resonance  # noqa: E402
-from characterize.physics.geometry import (  # noqa: E402
-    AirOverrides,
-    Cavity,
-    Neck,
-    ResonatorObject,
-    parse_object,
-)
+from characterize.physics.geometry import AirOverrides, Cavity, Neck, ResonatorObject  # noqa: E402
 from characterize.physics.helmholtz import bore_from_object, predict  # noqa: E402
 
 TEMPERATURE_C = 20.0

@@ -549,10 +549,11 @@ class TestResultDocuments:
 
     def test_from_the_pipeline(self, tmp_path: Path) -> None:
         """A real result document from analyze(): the summary carries its numbers."""
+        import soundfile as sf
+
         from characterize.excitation import SweepParams, make_sweep, sidecar_text
         from characterize.pipeline import analyze
         from characterize.simulate import Setup, simulate, write_recording
-        import soundfile as sf
 
         sp = SweepParams(start_hz=40, stop_hz=2000, duration_s=1.0, rate_hz=16000,
                          level_dbfs=-12, tail_s=0.6)

@@ -32,8 +32,8 @@ from html_page import HtmlPage
 from characterize import SCHEMA
 from characterize.cli import main
 from characterize.commands.levels import CAUTION
+from characterize.objectfile import load_object
 from characterize.physics.air import air_state
-from characterize.physics.geometry import load_object
 from characterize.physics.helmholtz import helmholtz_f0_hz
 
 EXAMPLES = Path(__file__).resolve().parent.parent / "example_audio"

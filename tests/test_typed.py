@@ -189,12 +189,12 @@ def test_batch_json_prints_the_summary_document(tmp_path):
 
 
 def test_ctrl_c_exits_130(monkeypatch):
-    import characterize.physics.geometry as geometry
+    import characterize.objectfile as objectfile
 
     def interrupted(*_a, **_k):
         raise KeyboardInterrupt
 
-    monkeypatch.setattr(geometry, "load_object", interrupted)
+    monkeypatch.setattr(objectfile, "load_object", interrupted)
     res = run("predict", JAR)
     assert res.exit_code == 130
     assert "interrupted" in res.stderr and "Traceback" not in res.output

@@ -8,7 +8,7 @@ import os
 from pathlib import Path
 from typing import Any
 
-from .. import SCHEMA, __version__
+from .._version import SCHEMA, __version__
 from ..batchdata import FAILURE_SCHEMA, Spec
 from .manifest import ManifestItem
 

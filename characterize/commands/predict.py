@@ -26,7 +26,7 @@ class _Co2(click.ParamType):
 
     def convert(self, value: Any, param: Any, ctx: Any) -> float:
         from ..errors import InputError
-        from ..physics.geometry import parse_co2
+        from ..objectfile import parse_co2
 
         if isinstance(value, float):
             return value
@@ -38,8 +38,7 @@ class _Co2(click.ParamType):
 
 def prediction_document(obj: Any, air: Any, sources: dict[str, str], pred: Any) -> dict[str, Any]:
     """The ``predict --json`` document."""
-    from .. import __version__
-
+    from .._version import __version__
     air_d = air.to_dict()
     air_d["sources"] = dict(sources)
     return {"schema": PREDICTION_SCHEMA, "tool_version": __version__, "object": obj.to_dict(),
@@ -149,7 +148,7 @@ def predict(object_path: Path, temperature_c: float | None, relative_humidity: f
     """Predict f0, the next modes and Q of the resonator in OBJECT (TOML)."""
     from ..errors import InputError
     from ..fileio import check_writable, out_folder
-    from ..physics.geometry import load_object
+    from ..objectfile import load_object
     from ..physics.helmholtz import predict as predict_object
 
     if sketch_path is not None and sketch_path.suffix.lower() not in (".png", ".svg", ".pdf"):

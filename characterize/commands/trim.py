@@ -91,7 +91,7 @@ def trim(result_path: Path, target_hz: float, object_path: Path | None, as_json:
     are offered instead.
     """
     from ..fileio import out_folder
-    from ..physics.geometry import load_object
+    from ..objectfile import load_object
     from ..report.document import to_json
     from ..tuning import advise_trim, load_result
 

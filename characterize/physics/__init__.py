@@ -8,12 +8,16 @@ air
     and Prandtl number of humid air (Cramer 1993, Davis 1992, U.S. Standard
     Atmosphere 1976).
 geometry
-    :func:`~characterize.physics.geometry.load_object`: the object file (TOML)
-    to a :class:`~characterize.physics.geometry.ResonatorObject` in SI units.
+    :class:`~characterize.physics.geometry.ResonatorObject` in SI units (the
+    object file, TOML, is read into one by :func:`characterize.objectfile.load_object`).
+lumped
+    End corrections of the neck, the resonance formula, acoustic mass and
+    compliance, the object as a 1-D bore.
 helmholtz
     :func:`~characterize.physics.helmholtz.predict` (lumped, corrected lumped
     and distributed f0, next modes, predicted Q with each contribution) and its
-    inversion from a measured f0 (:func:`~characterize.physics.helmholtz.derive_from_f0`).
+    inversion from a measured f0 (:func:`~characterize.physics.derive.derive_from_f0`,
+    also re-exported by helmholtz).
 radiation
     End corrections (round, slot, step), radiation resistance and the
     outside-microphone correction.

@@ -18,7 +18,7 @@ import math
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from .. import __version__
+from .._version import __version__
 from ..fileio import atomic_write_text
 
 if TYPE_CHECKING:

@@ -21,7 +21,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from .. import __version__
+from .._version import __version__
 from ..fileio import atomic_write, atomic_write_text
 from .html import CSP, HEAD, _png_size
 

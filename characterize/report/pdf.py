@@ -19,7 +19,7 @@ import textwrap
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from .. import __version__
+from .._version import __version__
 from ..fileio import atomic_write
 
 if TYPE_CHECKING:

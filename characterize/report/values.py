@@ -47,6 +47,7 @@ def rounded(value: float, stderr: float | None, fallback: int = 3) -> tuple[str,
         return "—", "—"
     if not _finite(stderr) or stderr == 0:
         return f"{value:.{fallback}f}", "—"
+    assert stderr is not None  # a finite number here
     d = error_decimals(float(stderr))
     if d >= 0:
         return f"{value:.{d}f}", f"{stderr:.{d}f}"
@@ -187,7 +188,7 @@ def drive_caution(doc: dict[str, Any]) -> str | None:
     """The drive-level caution when the cavity level calls for it."""
     d = doc.get("drive") or {}
     spl = d.get("cavity_spl_db")
-    if not _finite(spl) or spl < DRIVE_CAUTION_SPL_DB:
+    if not _finite(spl) or float(spl) < DRIVE_CAUTION_SPL_DB:  # type: ignore[arg-type]
         return None
     return (f"CAUTION: the cavity reached {spl:.0f} dB SPL in this measurement, and near "
             "the loudspeaker the level can pass 110 dB. Wear hearing protection, keep "
@@ -236,7 +237,7 @@ def object_text_from_file(path: str | None) -> str:
     if not path:
         return "none named (each item's own object file)"
     try:
-        from ..physics.geometry import load_object
+        from ..objectfile import load_object
 
         rows = object_rows(load_object(path).to_dict())
     except Exception:  # a report is still written; the item results say what failed

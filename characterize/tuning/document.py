@@ -10,7 +10,7 @@ from dataclasses import dataclass, fields, replace
 from pathlib import Path
 from typing import Any
 
-from .. import SCHEMA
+from .._version import SCHEMA
 from ..errors import InputError
 from ..fileio import read_text
 from ..physics.air import AirState, air_state

@@ -13,7 +13,8 @@ from pathlib import Path
 
 from ..errors import FitError, InputError
 from ..fileio import read_text
-from ..physics.geometry import ResonatorObject, load_object
+from ..objectfile import load_object
+from ..physics.geometry import ResonatorObject
 from ..units import parse_quantity, parse_temperature_c
 from .document import (
     ResultSummary,

@@ -36,8 +36,8 @@ import numpy as np
 import soundfile as sf
 
 from characterize.excitation import SweepParams, make_sweep, sidecar_text
+from characterize.objectfile import load_object
 from characterize.physics.air import air_state
-from characterize.physics.geometry import load_object
 from characterize.physics.helmholtz import derive_from_f0
 from characterize.simulate import Setup, simulate, write_recording
 from characterize.tuning import STANDARD_GRAVITY_M_S2, neck_displacement_over_diameter
