@@ -50,7 +50,7 @@ class Recording:
     """A multichannel recording, samples as float (full scale = 1)."""
 
     path: str
-    sample_rate_hz: float
+    rate_hz: float
     data: NDArray[np.floating]  # shape (n_samples, n_channels)
     subtype: str
     format: str
@@ -65,7 +65,7 @@ class Recording:
 
     @property
     def duration_s(self) -> float:
-        return self.n_samples / self.sample_rate_hz
+        return self.n_samples / self.rate_hz
 
     def channel(self, number: int) -> NDArray[np.float64]:
         """Samples of 1-based channel ``number`` as float64 (a copy)."""

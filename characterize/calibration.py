@@ -22,6 +22,7 @@ from typing import TYPE_CHECKING, Any
 
 from .errors import InputError
 from .fileio import atomic_write_text, check_writable, read_toml
+from .physics.spl import REFERENCE_PRESSURE_PA, spl_to_pressure_pa
 
 if TYPE_CHECKING:
     import numpy as np
@@ -38,7 +39,6 @@ __all__ = [
     "ChannelCalibration",
     "RelativeCalibration",
     "Calibration",
-    "pressure_from_spl_pa",
     "analyze_tone",
     "sensitivity_from_tone",
     "relative_from_swap",
@@ -47,8 +47,6 @@ __all__ = [
 ]
 
 SCHEMA = "characterize.calibration/1"
-#: SPL reference, 20 uPa rms.
-REFERENCE_PRESSURE_PA = 20e-6
 #: Length of the blocks whose tone level is compared, s.
 BLOCK_S = 0.1
 #: Shortest stretch of stable tone accepted, s. Calibrators settle within a
@@ -63,23 +61,6 @@ MIN_PURITY = 0.9
 STABILITY_DB = 0.4
 #: Peak at or above this is treated as clipped (full scale = 1).
 CLIP_PEAK = 0.999
-
-
-def pressure_from_spl_pa(level_db: float) -> float:
-    r"""RMS pressure of a sound pressure level: :math:`p = p_0 10^{L/20}`, p0 = 20 uPa.
-
-    94 dB gives 1.00237 Pa and 114 dB 10.0237 Pa (physics sheet section 10).
-
-    References
-    ----------
-    ISO 80000-8:2020, *Quantities and units -- Part 8: Acoustics* (sound pressure
-    level, reference 20 uPa); IEC 61672-1:2013, *Electroacoustics -- Sound level
-    meters -- Part 1: Specifications* (both from memory).
-    """
-    if isinstance(level_db, bool) or not isinstance(level_db, (int, float)) or not math.isfinite(
-            level_db):
-        raise ValueError(f"level_db must be a finite number, got {level_db!r}")
-    return REFERENCE_PRESSURE_PA * 10.0 ** (level_db / 20.0)
 
 
 @dataclass(frozen=True, slots=True)
@@ -271,8 +252,11 @@ def sensitivity_from_tone(samples: NDArray[np.float64], rate_hz: float, level_db
     IEC 60942:2017, *Electroacoustics -- Sound calibrators* (edition from
     memory); physics sheet section 10.
     """
-    return analyze_tone(samples, rate_hz, source=source, field_name=field_name).rms_fs / (
-        pressure_from_spl_pa(level_db))
+    if isinstance(level_db, bool) or not isinstance(level_db, (int, float)) or not math.isfinite(
+            level_db):
+        raise ValueError(f"level_db must be a finite number, got {level_db!r}")
+    return analyze_tone(samples, rate_hz, source=source, field_name=field_name).rms_fs / float(
+        spl_to_pressure_pa(level_db))
 
 
 def relative_from_swap(h_i: NDArray[np.complex128], h_ii: NDArray[np.complex128]

@@ -337,9 +337,9 @@ def load_sweep(path: str | Path, rate_hz: float | None = None) -> Sweep:
     from .audio import read_audio
 
     rec = read_audio(path)
-    if rate_hz is not None and rec.sample_rate_hz != rate_hz:
+    if rate_hz is not None and rec.rate_hz != rate_hz:
         raise InputError(str(path), "sample rate",
-                         f"sweep is at {rec.sample_rate_hz:g} Hz but the recording is at "
+                         f"sweep is at {rec.rate_hz:g} Hz but the recording is at "
                          f"{rate_hz:g} Hz; resample one of them")
     # single precision as stored (exact for 16/24-bit PCM and float WAVs): a long
     # sweep's samples stay in memory beside the recording's
@@ -348,12 +348,12 @@ def load_sweep(path: str | Path, rate_hz: float | None = None) -> Sweep:
     if side.exists():
         _check_is_sidecar(side, path)
         params = read_sidecar(side)
-        if params.rate_hz != rec.sample_rate_hz:
+        if params.rate_hz != rec.rate_hz:
             raise InputError(str(side), "sweep.rate_hz",
                              f"says {params.rate_hz:g} Hz but the WAV is at "
-                             f"{rec.sample_rate_hz:g} Hz")
+                             f"{rec.rate_hz:g} Hz")
         return Sweep(params, x, estimated=False)
-    return Sweep(estimate_params(x, rec.sample_rate_hz, str(path)), x, estimated=True)
+    return Sweep(estimate_params(x, rec.rate_hz, str(path)), x, estimated=True)
 
 
 #: The deconvolution's causal band limit has its corners this factor inside the

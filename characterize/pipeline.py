@@ -345,16 +345,16 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
                          "the mouth's baffle condition set the correction)")
     air, sources = resolve_air(obj, temperature_c=temperature_c,
                                relative_humidity=relative_humidity, pressure_pa=pressure_pa)
-    if rec is not None and band_hz is not None and band_hz[1] > rec.sample_rate_hz / 2:
+    if rec is not None and band_hz is not None and band_hz[1] > rec.rate_hz / 2:
         raise InputError("--band", None, f"{band_hz[0]:g} to {band_hz[1]:g} Hz is outside the "
-                         f"data (0 to {rec.sample_rate_hz / 2:g} Hz at this sample rate)")
+                         f"data (0 to {rec.rate_hz / 2:g} Hz at this sample rate)")
 
     two_mic = chosen in ("sweep", "h1", "h2")
     flags: list[Flag] = context["flags"]
     sweep_from = None
     context["input"] = InputInfo(
         recording=str(recording if recording is not None else transfer_path),
-        sample_rate_hz=None if rec is None else rec.sample_rate_hz,
+        sample_rate_hz=None if rec is None else rec.rate_hz,
         inside_channel=None if rec is None else inside,
         outside_channel=outside if two_mic else None, method=NO_FIT_METHOD_NAMES[chosen],
         polarity_inverted=False, sweep=None if sweep_path is None else str(sweep_path),
@@ -396,8 +396,8 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
         if chosen in ("sweep", "one-channel") and sweep_path is not None:
             from .excitation import load_sweep
 
-            sweep = load_sweep(sweep_path, rec.sample_rate_hz)
-            if rec.n_samples < sweep.samples.size - int(sweep.params.tail_s * rec.sample_rate_hz):
+            sweep = load_sweep(sweep_path, rec.rate_hz)
+            if rec.n_samples < sweep.samples.size - int(sweep.params.tail_s * rec.rate_hz):
                 raise InputError(rec.path, None,
                                  f"recording ({rec.duration_s:.2f} s) is shorter than the sweep "
                                  f"({sweep.params.duration_s:.2f} s): it cannot hold the response")
@@ -405,18 +405,18 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
             from .transfer import sweep_transfer
 
             y_out = rec.view(outside) if chosen == "sweep" else None
-            tf = sweep_transfer(y_in, y_out, rec.sample_rate_hz, sweep, window_s=window_s)
+            tf = sweep_transfer(y_in, y_out, rec.rate_hz, sweep, window_s=window_s)
         elif chosen == "one-channel":
             assert excitation_path is not None
             exc = read_audio(excitation_path)
-            if exc.sample_rate_hz != rec.sample_rate_hz:
+            if exc.rate_hz != rec.rate_hz:
                 raise InputError(str(excitation_path), "sample rate",
-                                 f"excitation is at {exc.sample_rate_hz:g} Hz but the recording "
-                                 f"is at {rec.sample_rate_hz:g} Hz; resample one of them")
+                                 f"excitation is at {exc.rate_hz:g} Hz but the recording "
+                                 f"is at {rec.rate_hz:g} Hz; resample one of them")
             x = _align_excitation(exc.channel(1), y_in, str(excitation_path))
             from .transfer import cross_spectral_transfer
 
-            tf = cross_spectral_transfer(y_in, x, rec.sample_rate_hz)
+            tf = cross_spectral_transfer(y_in, x, rec.rate_hz)
             tf = _as_method(tf, "one-channel-excitation")
         elif (modes or 1) == 1 and outside_distance_m is None:
             # the whole record, errors in both channels, transients modelled
@@ -426,13 +426,13 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
                 return cal.relative.correction(f, inside, outside)
 
             record_fit, tf = record_transfer_fit(
-                y_in, rec.view(outside), rec.sample_rate_hz, band_hz=band_hz,
+                y_in, rec.view(outside), rec.rate_hz, band_hz=band_hz,
                 estimator=chosen,
                 correction=match if cal is not None and cal.relative is not None else None)
         else:
             from .transfer import cross_spectral_transfer
 
-            tf = cross_spectral_transfer(y_in, rec.view(outside), rec.sample_rate_hz,
+            tf = cross_spectral_transfer(y_in, rec.view(outside), rec.rate_hz,
                                          estimator=chosen)
     if band_hz is not None:
         f = tf.freqs_hz
@@ -528,7 +528,7 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
         drive = _drive(rec, inside, cal, fit, obj, air, flags)
     info = InputInfo(
         recording=str(recording if recording is not None else transfer_path),
-        sample_rate_hz=None if rec is None else rec.sample_rate_hz,
+        sample_rate_hz=None if rec is None else rec.rate_hz,
         inside_channel=None if rec is None else inside,
         outside_channel=outside if two_mic else None, method=tf.method,
         polarity_inverted=fit.polarity_inverted,
@@ -570,11 +570,13 @@ def _drive(rec: Recording, inside: int, cal: Any, fit: FitResult,
     with the geometry the neck motion (physics.nonlinear.drive_state)."""
     from scipy.signal import butter, sosfiltfilt
 
+    from .physics.spl import pressure_to_spl_db
+
     if inside not in cal.channels:
         raise InputError(cal.source_path or "calibration", f"channel {inside}",
                          "the calibration file has no sensitivity for the inside channel")
     sens = cal.channels[inside].sensitivity_fs_per_pa
-    fs = rec.sample_rate_hz
+    fs = rec.rate_hz
     lo = max(1.0, fit.f0_hz * (1 - 1 / max(fit.q, 0.6)))
     hi = min(0.45 * fs, fit.f0_hz * (1 + 1 / max(fit.q, 0.6)))
     x = rec.channel(inside)
@@ -583,7 +585,7 @@ def _drive(rec: Recording, inside: int, cal: Any, fit: FitResult,
     p_amp = float(np.max(np.abs(y))) / sens
     out: dict[str, Any] = {"inside_sensitivity_fs_per_pa": sens,
                            "cavity_pressure_amplitude_pa": p_amp,
-                           "cavity_spl_db": float(20 * np.log10(p_amp / math.sqrt(2) / 20e-6))}
+                           "cavity_spl_db": float(pressure_to_spl_db(p_amp / math.sqrt(2)))}
     if obj is not None:
         from .physics.nonlinear import drive_state
 
@@ -643,7 +645,7 @@ def _ringdown(rec: Recording, channel: int, obj: ResonatorObject | None, air: Ai
 
     x = rec.channel(channel)
     try:
-        decays = fit_ringdown(x, rec.sample_rate_hz, rec.path)
+        decays = fit_ringdown(x, rec.rate_hz, rec.path)
     except FitError as exc:
         if rec.n_channels == 1:  # perhaps a two-microphone take saved as mono
             raise FitError(f"{exc} (a one-channel recording without --sweep or "
@@ -656,14 +658,14 @@ def _ringdown(rec: Recording, channel: int, obj: ResonatorObject | None, air: Ai
                     gain=float(np.mean([d.amplitude for d in decays])), gain_stderr=math.nan,
                     delay_s=0.0, delay_stderr_s=math.nan, polarity_inverted=False,
                     band_hz=(math.nan, math.nan), n_points=int(sum(
-                        d.length_s * rec.sample_rate_hz for d in decays)),
+                        d.length_s * rec.rate_hz for d in decays)),
                     chi2=math.nan, reduced_chi2=redchi, stderr_scale=1.0,
                     weighting="noise-estimate", correlation_f0_q=math.nan, nfev=0,
                     method="damped-sinusoid")
     flags += check_fit_quality(fit)
     flags += check_precision(fit)
     prediction, derived, used_tol = _geometry(obj, air, fit, flags, tolerance)
-    info = InputInfo(recording=str(rec.path), sample_rate_hz=rec.sample_rate_hz,
+    info = InputInfo(recording=str(rec.path), sample_rate_hz=rec.rate_hz,
                      inside_channel=channel, outside_channel=None, method="ringdown",
                      polarity_inverted=False, duration_s=rec.duration_s, subtype=rec.subtype)
     pencil = [{"f0_hz": d.pencil_f0_hz, "q": d.pencil_q} for d in decays]

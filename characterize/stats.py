@@ -11,6 +11,12 @@ from typing import Any
 import numpy as np
 
 
+def is_finite_number(x: Any) -> bool:
+    """True for an int or float that is neither NaN nor infinite (None, text and
+    other types are not numbers here)."""
+    return isinstance(x, (int, float)) and math.isfinite(x)
+
+
 @dataclass(frozen=True)
 class LineFit:
     r"""A straight line y = slope x + intercept fitted by (weighted) least squares.

@@ -126,7 +126,7 @@ def test_every_stereo_format_reads_and_fits(sim, fmt, subtype):
     path = sim["dir"] / f"rec-{subtype}.{EXT[fmt]}"
     sf.write(str(path), sim["data"], RATE, format=fmt, subtype=subtype)
     rec = read_audio(path, min_channels=2)
-    assert rec.subtype == subtype and rec.n_channels == 2 and rec.sample_rate_hz == RATE
+    assert rec.subtype == subtype and rec.n_channels == 2 and rec.rate_hz == RATE
     n = sim["data"].shape[0]
     assert n <= rec.n_samples <= n + 2048  # block codecs pad the last block
     assert rec.data.dtype == np.float32 and np.all(np.isfinite(rec.data))

@@ -15,7 +15,6 @@ from characterize.calibration import (
     ChannelCalibration,
     RelativeCalibration,
     analyze_tone,
-    pressure_from_spl_pa,
     read_calibration,
     relative_from_swap,
     sensitivity_from_tone,
@@ -23,6 +22,7 @@ from characterize.calibration import (
 )
 from characterize.cli import main
 from characterize.errors import InputError
+from characterize.physics.spl import spl_to_pressure_pa
 
 
 def _tone(rate=48000, seconds=3.0, freq=1000.0, rms_dbfs=-26.0, noise=1e-4, seed=0):
@@ -36,8 +36,8 @@ def _tone(rate=48000, seconds=3.0, freq=1000.0, rms_dbfs=-26.0, noise=1e-4, seed
 class TestLevels:
     def test_reference_levels(self):
         # physics sheet section 10: 94 dB = 1.00237 Pa rms, 114 dB = 10.0237 Pa rms
-        assert pressure_from_spl_pa(94.0) == pytest.approx(1.00237, abs=1e-5)
-        assert pressure_from_spl_pa(114.0) == pytest.approx(10.0237, abs=1e-4)
+        assert spl_to_pressure_pa(94.0) == pytest.approx(1.00237, abs=1e-5)
+        assert spl_to_pressure_pa(114.0) == pytest.approx(10.0237, abs=1e-4)
 
     def test_sheet_check(self):
         # physics sheet section 10: a -26 dBFS rms tone for 94 dB gives K = 0.0500 FS/Pa,

@@ -877,7 +877,7 @@ class TestManifest:
                      "s0,a.flac,,jar.toml,44 mm,19.5 degC,2\n"
                      ",b.flac,,jar.toml,4 cm,,\n"
                      "s2,,c.json,,0.036 m,,\n")
-        rows = tuning.read_manifest(m, {"neck_length": "length"}, ("neck_length",))
+        rows = tuning.read_tuning_manifest(m, {"neck_length": "length"}, ("neck_length",))
         assert [r.id for r in rows] == ["s0", "b", "s2"]
         assert [r.values["neck_length"] for r in rows] == pytest.approx([0.044, 0.04, 0.036])
         assert rows[0].temperature_c == 19.5 and rows[0].inside == 2 and rows[1].inside == 1
@@ -901,7 +901,7 @@ class TestManifest:
         m = tmp_path / "m.csv"
         m.write_text(text)
         with pytest.raises(InputError, match=match):
-            tuning.read_manifest(m, {"neck_length": "length"}, ("neck_length",))
+            tuning.read_tuning_manifest(m, {"neck_length": "length"}, ("neck_length",))
 
 
 # ==========================================================================

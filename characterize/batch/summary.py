@@ -20,6 +20,7 @@ from ..batchdata import (
 from ..stats import (
     OUTLIER_MODIFIED_Z,
     individuals_limits,
+    is_finite_number,
     modified_z_scores,
     process_capability,
     sample_std,
@@ -73,7 +74,8 @@ def mismatch(doc: dict[str, Any]) -> float | None:
     """Measured f0 over predicted f0, minus 1; None without a prediction."""
     pred = doc.get("prediction")
     f0 = (doc.get("fit") or {}).get("f0_hz")
-    if not pred or not _finite(pred.get("f0_hz")) or not _finite(f0) or pred["f0_hz"] == 0:
+    if (not pred or not is_finite_number(pred.get("f0_hz")) or not is_finite_number(f0)
+            or pred["f0_hz"] == 0):
         return None
     return float(f0 / pred["f0_hz"] - 1.0)
 
@@ -108,8 +110,8 @@ def batch_stats(outcomes: Sequence[ItemOutcome], spec: Spec) -> BatchStats:
     n = len(outcomes)
     n_pass = sum(o.status == "pass" for o in outcomes)
     n_err = sum(o.status == "error" for o in outcomes)
-    with_f0 = [o for o in outcomes if o.status != "error" and _finite(o.f0_hz)]
-    with_q = [o for o in outcomes if o.status != "error" and _finite(o.q)]
+    with_f0 = [o for o in outcomes if o.status != "error" and is_finite_number(o.f0_hz)]
+    with_q = [o for o in outcomes if o.status != "error" and is_finite_number(o.q)]
     f0 = [float(o.f0_hz) for o in with_f0]  # type: ignore[arg-type]
     q = [float(o.q) for o in with_q]  # type: ignore[arg-type]
     cp, cpk = process_capability(f0, spec.f0_lower_hz, spec.f0_upper_hz)
@@ -134,9 +136,6 @@ def batch_stats(outcomes: Sequence[ItemOutcome], spec: Spec) -> BatchStats:
         control_ucl_hz=lim[2] if lim else None, control_sigma_hz=lim[3] if lim else None,
         outliers=tuple(outliers))
 
-
-def _finite(v: Any) -> bool:
-    return isinstance(v, (int, float)) and math.isfinite(v)
 
 
 def summarize(manifest: Manifest, spec: Spec, docs: dict[str, dict[str, Any]],

@@ -39,10 +39,10 @@ def _relative(recording: Path, swapped: Path, sweep: Path | None, inside: int, o
         check_channel(rec, outside, "--outside")
     if inside == outside:
         raise InputError("--inside/--outside", None, "must be different channels")
-    if rec_i.sample_rate_hz != rec_ii.sample_rate_hz:
-        raise InputError(str(swapped), None, f"sample rate {rec_ii.sample_rate_hz:g} Hz differs "
-                         f"from {recording}'s {rec_i.sample_rate_hz:g} Hz")
-    fs = rec_i.sample_rate_hz
+    if rec_i.rate_hz != rec_ii.rate_hz:
+        raise InputError(str(swapped), None, f"sample rate {rec_ii.rate_hz:g} Hz differs "
+                         f"from {recording}'s {rec_i.rate_hz:g} Hz")
+    fs = rec_i.rate_hz
     if sweep is not None:
         from ..excitation import load_sweep
 
@@ -122,12 +122,12 @@ def calibrate(recording: Path, channel: int | None, level_db: float, swapped: Pa
         Calibration,
         ChannelCalibration,
         analyze_tone,
-        pressure_from_spl_pa,
         read_calibration,
         write_calibration,
     )
     from ..errors import InputError
     from ..fileio import check_writable, out_folder
+    from ..physics.spl import spl_to_pressure_pa
 
     if (channel is None) == (swapped is None):
         raise InputError("calibrate", None, "give either --channel N (a calibrator tone) or "
@@ -148,9 +148,9 @@ def calibrate(recording: Path, channel: int | None, level_db: float, swapped: Pa
 
         rec = read_audio(recording)
         check_channel(rec, channel, "--channel")
-        tone = analyze_tone(rec.channel(channel), rec.sample_rate_hz, source=str(recording),
+        tone = analyze_tone(rec.channel(channel), rec.rate_hz, source=str(recording),
                             field_name=f"--channel {channel}")
-        k = tone.rms_fs / pressure_from_spl_pa(level_db)
+        k = tone.rms_fs / float(spl_to_pressure_pa(level_db))
         cal = base.with_channel(ChannelCalibration(channel, k, level_db, tone.frequency_hz,
                                                    str(recording)))
         write_calibration(out_path, cal, force=True)

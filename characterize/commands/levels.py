@@ -52,7 +52,7 @@ def levels(manifest: Path, out_dir: Path | None, as_json: bool, force: bool) -> 
         level_study,
         measure_rows,
         read_force_table,
-        read_manifest,
+        read_tuning_manifest,
     )
 
     targets = []
@@ -71,7 +71,7 @@ def levels(manifest: Path, out_dir: Path | None, as_json: bool, force: bool) -> 
         text = tuning_report.power_law_text(result)
         top = max(table.spl_db)
     else:
-        rows = read_manifest(manifest, {"spl_db": "db"})
+        rows = read_tuning_manifest(manifest, {"spl_db": "db"})
         if len(rows) < 3:
             raise InputError(str(manifest), None,
                              f"a level study needs at least 3 levels, got {len(rows)}")

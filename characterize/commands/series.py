@@ -32,7 +32,14 @@ def series(manifest: Path, vary: str, as_json: bool, out_dir: Path | None, force
     from ..errors import InputError
     from ..fileio import check_writable
     from ..report.document import to_json, write_document
-    from ..tuning import VARY, SeriesPoint, check_points, fit_series, measure_rows, read_manifest
+    from ..tuning import (
+        VARY,
+        SeriesPoint,
+        check_points,
+        fit_series,
+        measure_rows,
+        read_tuning_manifest,
+    )
 
     column, kind = VARY[vary]
     targets = []
@@ -43,7 +50,7 @@ def series(manifest: Path, vary: str, as_json: bool, out_dir: Path | None, force
                    out_dir / "report.pdf"]
         for t in targets:
             check_writable(t, force=force)
-    rows = read_manifest(manifest, {column: kind}, required_values=(column,))
+    rows = read_tuning_manifest(manifest, {column: kind}, required_values=(column,))
     check_points([r.values[column] for r in rows], [r.id for r in rows], str(manifest),
                  "trim series" if vary == "neck-length" else "fill series")
     measured, failures = measure_rows(rows)

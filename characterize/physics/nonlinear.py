@@ -12,6 +12,8 @@ import math
 from dataclasses import asdict, dataclass
 from typing import TYPE_CHECKING
 
+from .spl import REFERENCE_PRESSURE_PA, pressure_to_spl_db
+
 if TYPE_CHECKING:
     from .air import AirState
     from .geometry import ResonatorObject
@@ -24,8 +26,6 @@ __all__ = [
     "cavity_pressure_for_displacement_pa",
 ]
 
-#: Reference pressure of SPL, 20 uPa rms (IEC 61672-1 / ISO 80000-8 convention).
-REFERENCE_PRESSURE_PA = 20e-6
 
 #: Displacement over neck diameter above which ``nonlinear`` is set. Common
 #: practice: at a displacement comparable to the diameter the neck flow is
@@ -93,7 +93,7 @@ class DriveState:
 
 
 def _spl_db(p_peak_pa: float) -> float:
-    return 20.0 * math.log10(p_peak_pa / math.sqrt(2.0) / REFERENCE_PRESSURE_PA)
+    return float(pressure_to_spl_db(p_peak_pa / math.sqrt(2.0)))
 
 
 def cavity_pressure_for_displacement_pa(displacement_m: float, obj: ResonatorObject,

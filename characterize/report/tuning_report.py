@@ -30,7 +30,7 @@ CAUTION_SPL_DB = 110.0
 _MM, _ML = 1e3, 1e6
 
 
-def _finite(x: float) -> bool:
+def _not_nan(x: float) -> bool:
     return x == x
 
 
@@ -77,21 +77,21 @@ def series_lines(s: SeriesFit) -> list[str]:
                      f"{s.end_correction_stderr_m * mm:.3f} mm"
                      + (f" = {s.end_correction_over_radius:.3f} ± "
                         f"{s.end_correction_over_radius_stderr:.3f} neck radii"
-                        if _finite(s.end_correction_over_radius) else ""))
+                        if _not_nan(s.end_correction_over_radius) else ""))
         lines.append(f"  V/S = {s.volume_over_area_m:.5g} ± {s.volume_over_area_stderr_m:.2g} m"
                      + (f" (V = {s.volume_m3 * ml:.1f} ± {s.volume_stderr_m3 * ml:.1f} mL)"
-                        if _finite(s.volume_m3) else ""))
+                        if _not_nan(s.volume_m3) else ""))
     else:
         lines.append(f"  L_eff/S = {s.effective_length_over_area_m_inv:.5g} ± "
                      f"{s.effective_length_over_area_stderr_m_inv:.2g} 1/m, empty volume V0 = "
                      f"{s.volume_m3 * ml:.2f} ± {s.volume_stderr_m3 * ml:.2f} mL")
-        if _finite(s.effective_neck_length_m):
+        if _not_nan(s.effective_neck_length_m):
             lines.append(f"  L_eff = {s.effective_neck_length_m * mm:.3f} ± "
                          f"{s.effective_neck_length_stderr_m * mm:.3f} mm"
                          + (f", end correction {s.end_correction_m * mm:.3f} mm = "
                             f"{s.end_correction_over_radius:.3f} neck radii"
-                            if _finite(s.end_correction_m) else ""))
-    if _finite(s.textbook_end_correction_m):
+                            if _not_nan(s.end_correction_m) else ""))
+    if _not_nan(s.textbook_end_correction_m):
         lines.append(f"  textbook end correction for this geometry: "
                      f"{s.textbook_end_correction_m * mm:.3f} mm")
     return lines
@@ -106,7 +106,7 @@ def series_text(s: SeriesFit) -> str:
     lines.append(f"  {'id':<16} {'value':>9} {'f0 (Hz)':>18} {'T (°C)':>7} {'residual':>9} "
                  f"{'stud.':>6}")
     for p, r, t in zip(s.points, line.normalized_residuals, line.studentized, strict=True):
-        mark = "  outlier" if _finite(t) and abs(t) > 3 else ""
+        mark = "  outlier" if _not_nan(t) and abs(t) > 3 else ""
         lines.append(f"  {p.id:<16} {p.value * scale:>6.2f} {unit} {p.f0_hz:>10.3f} ± "
                      f"{p.f0_stderr_hz:<5.3f} {p.temperature_c:>7.1f} {r:>8.2f}σ {t:>6.2f}{mark}")
     return "\n".join(lines + flag_lines(s.flags))
@@ -120,7 +120,7 @@ def series_page(s: SeriesFit, source: str, png: bytes | None = None,
     rows = tuple(
         (p.id, fmt(p.value * scale, ".2f"), fmt(p.f0_hz, ".3f"), fmt(p.f0_stderr_hz, ".3f"),
          fmt(p.temperature_c, ".1f"), fmt(y * 1e6, ".6g"), fmt(r, "+.2f"), fmt(t, "+.2f"),
-         "outlier" if _finite(t) and abs(t) > 3 else "")
+         "outlier" if _not_nan(t) and abs(t) > 3 else "")
         for p, y, r, t in zip(s.points, s.inverse_f0_squared_s2, s.line.normalized_residuals,
                               s.line.studentized, strict=True))
     kind = "trim series" if trim else "fill series"
@@ -162,16 +162,16 @@ def levels_lines(s: LevelStudy) -> list[str]:
         f"  small-signal Q0 = {s.q_small_signal:.3f} ± {s.q_small_signal_stderr:.3f}; "
         f"1/Q grows by {s.q_slope_per_pa:.4g} ± {s.q_slope_stderr_per_pa:.2g} per Pa (rms)",
     ]
-    if _finite(s.onset_spl_db):
+    if _not_nan(s.onset_spl_db):
         xd = s.onset_displacement_over_diameter
         lines.append(f"  onset (Q down {100 * s.q_drop_fraction:.0f} %): {s.onset_spl_db:.2f} ± "
                      f"{s.onset_spl_stderr_db:.2f} dB ({s.onset_pressure_pa:.3g} Pa rms"
-                     + (f", neck displacement {xd:.3g} of the diameter" if _finite(xd) else "")
+                     + (f", neck displacement {xd:.3g} of the diameter" if _not_nan(xd) else "")
                      + ")")
     else:
         lines.append("  onset: no Q drop detected"
                      + (f" (above about {s.onset_lower_bound_spl_db:.0f} dB)"
-                        if _finite(s.onset_lower_bound_spl_db) else ""))
+                        if _not_nan(s.onset_lower_bound_spl_db) else ""))
     lines.append(f"  f0 moves {s.f0_shift_hz:+.3f} ± {s.f0_shift_stderr_hz:.3f} Hz over the range")
     return lines
 
@@ -201,7 +201,7 @@ def levels_page(s: LevelStudy, source: str, png: bytes | None = None,
                   ("id", "SPL (dB)", "SPL from", "f0 (Hz)", "f0 s.e. (Hz)", "Q", "Q s.e.",
                    "xi/d", "stud."), rows)
     onset = (f"the onset at {s.onset_spl_db:.2f} ± {s.onset_spl_stderr_db:.2f} dB marked with "
-             f"its band" if _finite(s.onset_spl_db) else "no onset detected")
+             f"its band" if _not_nan(s.onset_spl_db) else "no onset detected")
     figure = None if png is None else Figure(
         png, f"Q with error bars against cavity SPL in dB for {len(s.points)} levels, with the "
              f"fitted model 1/Q = 1/Q0 + β p, the small-signal Q0 = {s.q_small_signal:.2f}, "

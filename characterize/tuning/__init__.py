@@ -10,7 +10,7 @@ Contents, by task:
 
 - reading inputs: :func:`load_result` / :func:`result_from_dict` (a fitted
   result document, schema ``characterize.result/1``) -> :class:`ResultSummary`;
-  :func:`read_manifest` (CSV) -> :class:`ManifestRow`; :func:`measure_rows`
+  :func:`read_tuning_manifest` (CSV) -> :class:`ManifestRow`; :func:`measure_rows`
   (run the main job on recordings, read result documents) -> measured items
   and failed items; :func:`read_force_table`.
 - the straight line: :func:`fit_line` (weighted least squares with
@@ -32,8 +32,10 @@ Everything is SI inside (m, m^2, m^3, Hz, Pa, N, kg); sound levels are dB re
 order (the law of propagation of uncertainty of JCGM 100:2008, section 5.1.2).
 """
 
-from ..physics.nonlinear import (
+from ..physics.spl import (
     REFERENCE_PRESSURE_PA,
+    pressure_to_spl_db,
+    spl_to_pressure_pa,
 )
 from ..stats import (
     LineFit,
@@ -70,9 +72,7 @@ from .levels import (
     level_points,
     level_study,
     neck_displacement_over_diameter,
-    pressure_to_spl_db,
     read_force_table,
-    spl_to_pressure_pa,
 )
 from .manifest import (
     BASE_COLUMNS,
@@ -80,7 +80,7 @@ from .manifest import (
     ManifestRow,
     Measured,
     measure_rows,
-    read_manifest,
+    read_tuning_manifest,
 )
 from .match import (
     MatchedSet,
@@ -132,7 +132,7 @@ __all__ = [
     "SeriesFit",
     "fit_series",
     "ManifestRow",
-    "read_manifest",
+    "read_tuning_manifest",
     "Measured",
     "Failure",
     "measure_rows",

@@ -3,7 +3,6 @@ the point-count check of every study, and two small helpers."""
 
 from __future__ import annotations
 
-import math
 from collections.abc import Iterable, Sequence
 
 from ..checks import Flag
@@ -44,9 +43,6 @@ STANDARD_GRAVITY_M_S2 = 9.80665
 MIN_POINTS = 3
 
 
-def _finite(x: float) -> bool:
-    return isinstance(x, (int, float)) and math.isfinite(x)
-
 
 def _flags_dicts(flags: Iterable[Flag]) -> list[dict[str, str]]:
     return [f.to_dict() for f in flags]
@@ -64,7 +60,7 @@ def check_points(values: Sequence[float], ids: Sequence[str], source: str, what:
         raise InputError(source, None, f"a {what} needs at least {MIN_POINTS} points, got "
                          f"{len(values)}")
     seen: dict[float, str] = {}
-    for v, i in zip(values, ids):
+    for v, i in zip(values, ids, strict=False):
         key = round(float(v), 12)
         if key in seen:
             raise InputError(source, what, f"duplicate value {v:.6g} (items {seen[key]!r} and "

@@ -19,9 +19,7 @@ from ..physics.helmholtz import (
     derive_from_f0,
     predict,
 )
-from .common import (
-    _finite,
-)
+from ..stats import is_finite_number
 
 
 @dataclass(frozen=True)
@@ -84,7 +82,8 @@ class ResultSummary:
             raise InputError(obj.source_path, "kind", f"tuning works on Helmholtz resonators, "
                              f"not on a {obj.kind!r}")
         derived = derive_from_f0(self.f0_hz, _nan_to_zero(self.f0_stderr_hz), obj, self.air)
-        stderr = derived.end_correction_stderr_m if _finite(self.f0_stderr_hz) else math.nan
+        stderr = (derived.end_correction_stderr_m if is_finite_number(self.f0_stderr_hz)
+                  else math.nan)
         return replace(self, object=obj, name=obj.name,
                        end_correction_m=derived.end_correction_m,
                        end_correction_stderr_m=stderr,
@@ -117,7 +116,7 @@ class ResultSummary:
 
 
 def _nan_to_zero(x: float) -> float:
-    return x if _finite(x) else 0.0
+    return x if is_finite_number(x) else 0.0
 
 
 def _number(doc: Mapping[str, Any], dotted: str, source: str, *, required: bool = True,

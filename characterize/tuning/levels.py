@@ -15,7 +15,8 @@ from ..checks import Flag
 from ..errors import FitError, InputError
 from ..physics.air import AirState
 from ..physics.geometry import ResonatorObject
-from ..physics.nonlinear import REFERENCE_PRESSURE_PA, drive_state
+from ..physics.nonlinear import drive_state
+from ..physics.spl import pressure_to_spl_db, spl_to_pressure_pa
 from ..stats import LineFit, fit_line
 from .common import (
     LEVEL_DETECTION_SIGMAS,
@@ -28,40 +29,6 @@ from .common import (
     check_points,
 )
 from .manifest import Measured, _check_columns, _read_csv
-
-
-def spl_to_pressure_pa(spl_db: Any) -> Any:
-    r"""RMS pressure from a sound pressure level.
-
-    .. math::
-
-        p_\text{rms} = p_\text{ref}\,10^{L/20},\quad p_\text{ref} = 20\ \mu\text{Pa}
-
-    Parameters
-    ----------
-    spl_db : float or array
-        SPL, dB re 20 uPa.
-
-    Returns
-    -------
-    float or array
-        RMS pressure, Pa.
-
-    References
-    ----------
-    IEC 61672-1:2013, *Electroacoustics -- Sound level meters*, definition of
-    sound pressure level (clause from memory); physics sheet section 10
-    (94 dB = 1.00237 Pa).
-    """
-    return REFERENCE_PRESSURE_PA * 10.0 ** (np.asarray(spl_db, dtype=float) / 20.0)
-
-
-def pressure_to_spl_db(p_rms_pa: Any) -> Any:
-    """Sound pressure level (dB re 20 uPa) from an RMS pressure (Pa).
-
-    The inverse of :func:`spl_to_pressure_pa`.
-    """
-    return 20.0 * np.log10(np.asarray(p_rms_pa, dtype=float) / REFERENCE_PRESSURE_PA)
 
 
 def neck_displacement_over_diameter(spl_db: float, f0_hz: float, obj: ResonatorObject,
@@ -193,7 +160,7 @@ class LevelStudy:
     def to_dict(self) -> dict[str, Any]:
         d = {f.name: getattr(self, f.name) for f in fields(self)}
         d["points"] = [{**p.to_dict(), "studentized_residual": t}
-                       for p, t in zip(self.points, self.line.studentized)]
+                       for p, t in zip(self.points, self.line.studentized, strict=False)]
         d["line"] = self.line.to_dict()
         d["flags"] = _flags_dicts(self.flags)
         d["failures"] = [dict(x) for x in self.failures]
@@ -305,7 +272,7 @@ def level_study(points: Sequence[LevelPoint], *, source: str = "levels",
         flags.append(Flag("f0-level-dependent", "info",
                           f"f0 moves by {df:+.3f} ± {df_se:.3f} Hz from {spl[0]:.1f} to "
                           f"{spl[-1]:.1f} dB"))
-    for p, t in zip(pts, line.studentized):
+    for p, t in zip(pts, line.studentized, strict=False):
         if math.isfinite(t) and abs(t) > OUTLIER_STUDENTIZED:
             flags.append(Flag("outlier", "warning",
                               f"level {p.id!r} ({p.spl_db:.1f} dB) has a studentized residual "
@@ -487,7 +454,7 @@ def fit_power_law(spl_db: Sequence[float], force_n: Sequence[float],
                           f"the force grows with exponent {n:.3f} ± {se_n:.3f} against pressure, "
                           f"{abs(z):.1f} standard errors from 2 (a second-order effect): another "
                           "mechanism, or a level-dependent offset, contributes"))
-    for s, t in zip(spl, line.studentized):
+    for s, t in zip(spl, line.studentized, strict=False):
         if math.isfinite(t) and abs(t) > OUTLIER_STUDENTIZED:
             flags.append(Flag("outlier", "warning",
                               f"the reading at {s:.1f} dB has a studentized residual of {t:+.1f}"))

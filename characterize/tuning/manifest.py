@@ -76,12 +76,12 @@ def _read_csv(path: Path) -> tuple[list[str], list[tuple[int, dict[str, str]]]]:
         dup = next(h for h in header if header.count(h) > 1)
         raise InputError(source, f"column {dup!r}", "appears twice in the header")
     rows = []
-    for (lineno, _), cells in zip(lines[1:], table[1:]):
+    for (lineno, _), cells in zip(lines[1:], table[1:], strict=False):
         if len(cells) > len(header):
             raise InputError(source, f"line {lineno}", f"{len(cells)} cells for "
                              f"{len(header)} columns")
         cells = cells + [""] * (len(header) - len(cells))
-        rows.append((lineno, {h: c.strip() for h, c in zip(header, cells)}))
+        rows.append((lineno, {h: c.strip() for h, c in zip(header, cells, strict=False)}))
     return header, rows
 
 
@@ -132,7 +132,7 @@ def _value(text: str, kind: str, source: str, field: str) -> float:
     return parse_quantity(text, kind, source, field, positive=True)
 
 
-def read_manifest(path: str | Path, value_columns: Mapping[str, str],
+def read_tuning_manifest(path: str | Path, value_columns: Mapping[str, str],
                   required_values: Sequence[str] = ()) -> list[ManifestRow]:
     """Read a manifest CSV of recordings or result documents.
 

@@ -12,9 +12,9 @@ import numpy as np
 
 from ..checks import Flag
 from ..errors import InputError
+from ..stats import is_finite_number
 from .common import (
     SERIES_TEMPERATURE_SPREAD_K,
-    _finite,
     _flags_dicts,
 )
 from .document import (
@@ -189,7 +189,7 @@ def match_sets(results: Sequence[ResultSummary], count: int, target_hz: float, b
 
     if by not in ("f0", "f0,q"):
         raise InputError("--by", None, f"must be one of 'f0', 'f0,q', got {by!r}")
-    if not _finite(target_hz) or target_hz <= 0:
+    if not is_finite_number(target_hz) or target_hz <= 0:
         raise InputError("--target", None, f"must be a frequency > 0 Hz, got {target_hz!r}")
     n = len(results)
     if count < 2:
@@ -208,7 +208,7 @@ def match_sets(results: Sequence[ResultSummary], count: int, target_hz: float, b
                   f0_stderr_hz=r.f0_stderr_hz * c_ref / r.air.speed_of_sound_m_s, q=r.q,
                   q_stderr=r.q_stderr, f0_measured_hz=r.f0_hz,
                   temperature_c=r.air.temperature_c)
-        for i, r in zip(ids, results))
+        for i, r in zip(ids, results, strict=False))
     f = np.array([it.f0_hz for it in items])
     q = np.array([it.q for it in items])
     q_scale = float(np.median(q))

@@ -121,7 +121,7 @@ class SeriesFit:
 
     @property
     def outliers(self) -> tuple[str, ...]:
-        return tuple(p.id for p, t in zip(self.points, self.line.studentized)
+        return tuple(p.id for p, t in zip(self.points, self.line.studentized, strict=False)
                      if math.isfinite(t) and abs(t) > OUTLIER_STUDENTIZED)
 
     def to_dict(self) -> dict[str, Any]:
@@ -133,7 +133,7 @@ class SeriesFit:
             for p, fc, y, sy, r, t in zip(self.points, self.f0_corrected_hz,
                                           self.inverse_f0_squared_s2,
                                           self.inverse_f0_squared_stderr_s2,
-                                          self.line.residuals, self.line.studentized)
+                                          self.line.residuals, self.line.studentized, strict=False)
         ]
         for k in ("f0_corrected_hz", "inverse_f0_squared_s2", "inverse_f0_squared_stderr_s2"):
             del d[k]
@@ -281,7 +281,7 @@ def fit_series(points: Sequence[SeriesPoint], vary: str, obj: ResonatorObject | 
                               f"({out['end_correction_m'] * 1e3:.2f} mm); plausible is {lo:g} "
                               f"to {hi:g}: check the varied values, their units and the "
                               "neck diameter"))
-    for p, t in zip(pts, line.studentized):
+    for p, t in zip(pts, line.studentized, strict=False):
         if math.isfinite(t) and abs(t) > OUTLIER_STUDENTIZED:
             flags.append(Flag("outlier", "warning",
                               f"point {p.id!r} has a studentized residual of {t:+.1f} (beyond "

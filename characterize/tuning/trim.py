@@ -16,10 +16,10 @@ from ..physics.helmholtz import (
     derive_from_f0,
     helmholtz_f0_hz,
 )
+from ..stats import is_finite_number
 from .common import (
     MAX_DIAMETER_CHANGE_FRACTION,
     MAX_VOLUME_CHANGE_FRACTION,
-    _finite,
     _flags_dicts,
 )
 from .document import (
@@ -170,7 +170,7 @@ class TrimAdvice:
 
 def _central_stderr(fn: Callable[[float], float], x: float, sigma: float) -> float:
     """First-order standard error of fn(x) by a central difference (the delta method)."""
-    if not _finite(sigma):
+    if not is_finite_number(sigma):
         return math.nan
     if sigma == 0:
         return 0.0
@@ -251,7 +251,7 @@ def advise_trim(result: ResultSummary, target_hz: float) -> TrimAdvice:
     *Guide to the expression of uncertainty in measurement*, section 5.1.2
     (first-order propagation; section from memory).
     """
-    if not _finite(target_hz) or target_hz <= 0:
+    if not is_finite_number(target_hz) or target_hz <= 0:
         raise InputError("--target", None, f"must be a frequency > 0 Hz, got {target_hz!r}")
     obj = result.object
     if obj is None:
