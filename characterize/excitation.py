@@ -374,7 +374,7 @@ def usable_band(params: SweepParams) -> tuple[float, float]:
 
 def band_response(f_min_hz: float, f_max_hz: float, lo_hz: float, hi_hz: float,
                   order: int = BAND_ORDER
-                  ) -> Callable[[NDArray[np.float64]], NDArray[np.complex128]]:
+                  ) -> Callable[[NDArray[np.floating]], NDArray[np.complex128]]:
     """The causal band limit of :func:`band_filter` as a function of frequency,
     accurate on [``f_min_hz``, ``f_max_hz``]: evaluated once on a dense log grid
     (zeros-poles-gain form; the polynomial form loses precision at order 8),
@@ -390,7 +390,7 @@ def band_response(f_min_hz: float, f_max_hz: float, lo_hz: float, hi_hz: float,
     g = hh * hl
     lg = np.log(grid)
 
-    def response(freqs_hz: NDArray[np.float64]) -> NDArray[np.complex128]:
+    def response(freqs_hz: NDArray[np.floating]) -> NDArray[np.complex128]:
         f = np.asarray(freqs_hz, dtype=np.float64)
         lf = np.log(np.maximum(f, f_min))
         out = np.interp(lf, lg, g.real) + 1j * np.interp(lf, lg, g.imag)
@@ -400,7 +400,7 @@ def band_response(f_min_hz: float, f_max_hz: float, lo_hz: float, hi_hz: float,
     return response
 
 
-def band_filter(freqs_hz: NDArray[np.float64], lo_hz: float, hi_hz: float,
+def band_filter(freqs_hz: NDArray[np.floating], lo_hz: float, hi_hz: float,
                 order: int = BAND_ORDER) -> NDArray[np.complex128]:
     """Causal (minimum-phase) band limit: analog Butterworth high-pass at ``lo_hz``
     times low-pass at ``hi_hz`` (S. Butterworth, "On the theory of filter
@@ -416,7 +416,7 @@ def band_filter(freqs_hz: NDArray[np.float64], lo_hz: float, hi_hz: float,
     return band_response(float(pos.min()), float(pos.max()), lo_hz, hi_hz, order)(f)
 
 
-def _inverse_values(x: NDArray[np.complex128], f: NDArray[np.float64], p: SweepParams,
+def _inverse_values(x: NDArray[np.complex128], f: NDArray[np.floating], p: SweepParams,
                     peak: float, limit: NDArray[np.complex128]) -> NDArray[np.complex128]:
     """``limit conj(X) / max(|X|^2 + eps, floor)`` for sweep-spectrum values ``x`` at
     frequencies ``f`` (see :func:`inverse_spectrum`)."""

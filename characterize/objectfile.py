@@ -290,10 +290,10 @@ def _build_cavity(v: dict[str, Any], raw: Mapping[str, Any], source: str) -> Cav
             uses = ", ".join(needed) if needed else "no dimensions"
             raise InputError(source, f"cavity.{key}", f"not used by shape {shape!r} (it takes "
                              f"{uses})")
-    for key in needed:
-        if key not in v:
-            kind = "sections" if key == "sections" else "length"
-            raise _missing(source, f"cavity.{key}", kind)
+    for need in needed:
+        if need not in v:
+            raise _missing(source, f"cavity.{need}",
+                           "sections" if need == "sections" else "length")
     if "volume" in v and "volume_by_water" in v:
         raise InputError(source, "cavity.volume_by_water", "give either volume or "
                          "volume_by_water, not both")

@@ -138,7 +138,7 @@ class Result:
     def to_dict(self) -> dict[str, Any]:
         """The result document (schema ``characterize.result/1``, see docs/result-schema.md)."""
         tf = self.transfer
-        air = self.air.to_dict()
+        air: dict[str, Any] = self.air.to_dict()
         air["sources"] = dict(self.air_sources)
         fit = self.fit.to_dict()
         fit["modes"] = self.modes

@@ -25,6 +25,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import asdict, dataclass, field, replace
+from typing import cast
 
 import numpy as np
 from numpy.typing import NDArray
@@ -84,10 +85,10 @@ def resonator_response(freqs_hz: NDArray[np.float64], f0_hz: float, q: float
                        ) -> NDArray[np.complex128]:
     """Low-pass damped oscillator 1/(1 - (f/f0)^2 + j f/(Q f0)) (Rayleigh 1896)."""
     x = np.asarray(freqs_hz, dtype=np.float64) / f0_hz
-    return 1.0 / (1.0 - x**2 + 1j * x / q)
+    return cast("NDArray[np.complex128]", 1.0 / (1.0 - x**2 + 1j * x / q))
 
 
-def true_transfer(setup: Setup, freqs_hz: NDArray[np.float64]) -> NDArray[np.complex128]:
+def true_transfer(setup: Setup, freqs_hz: NDArray[np.floating]) -> NDArray[np.complex128]:
     """The exact inside/outside ratio the simulated recording carries."""
     f = np.asarray(freqs_hz, dtype=np.float64)
     h = resonator_response(f, setup.f0_hz, setup.q)

@@ -9,6 +9,7 @@ from dataclasses import asdict, dataclass
 from typing import Any
 
 import numpy as np
+from numpy.typing import NDArray
 
 
 def is_finite_number(x: Any) -> bool:
@@ -81,8 +82,8 @@ class LineFit:
         return d
 
 
-def fit_line(x: Sequence[float], y: Sequence[float],
-             sigma: Sequence[float] | None = None) -> LineFit:
+def fit_line(x: Sequence[float] | NDArray[np.floating], y: Sequence[float] | NDArray[np.floating],
+             sigma: Sequence[float] | NDArray[np.floating] | None = None) -> LineFit:
     r"""Fit y = b x + a by weighted least squares, with diagnostics.
 
     With weights :math:`w_i = 1/\sigma_i^2` and design matrix

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import asdict, dataclass
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -140,13 +141,17 @@ def smooth(m: NDArray[np.complex128], wts: NDArray[np.float64], form: str
            ) -> NDArray[np.complex128]:
     """Apply kernel weights (one row shared, or one row per point) to a model
     evaluated on the kernel's offsets (points x offsets)."""
+    out: Any
     if wts.ndim == 1:
         if form == "h2":
-            return (np.abs(m) ** 2 @ wts) / (np.conj(m) @ wts)
-        return m @ wts
-    if form == "h2":
-        return np.sum(np.abs(m) ** 2 * wts, axis=1) / np.sum(np.conj(m) * wts, axis=1)
-    return np.sum(m * wts, axis=1)
+            out = (np.abs(m) ** 2 @ wts) / (np.conj(m) @ wts)
+        else:
+            out = m @ wts
+    elif form == "h2":
+        out = np.sum(np.abs(m) ** 2 * wts, axis=1) / np.sum(np.conj(m) * wts, axis=1)
+    else:
+        out = np.sum(m * wts, axis=1)
+    return out
 
 
 def local_kernel(tf: TransferFunction, f: NDArray[np.float64]) -> Kernel:
@@ -278,7 +283,7 @@ def fit_transfer(tf: TransferFunction, band_hz: tuple[float, float] | None = Non
 
         kern = local_kernel(tf, f)
 
-        def residual(p: lmfit.Parameters, f: NDArray[np.float64] = f,
+        def residual(p: Any, f: NDArray[np.float64] = f,
                      h: NDArray[np.complex128] = h, sig: NDArray[np.float64] = sig,
                      kern: Kernel = kern) -> NDArray[np.float64]:
             v = np.array([p["f0"].value, p["q"].value, p["gain"].value, p["delay"].value])

@@ -5,6 +5,8 @@ Time dependence e^{+j omega t}; frequencies in Hz.
 
 from __future__ import annotations
 
+from typing import cast
+
 import numpy as np
 from numpy.typing import NDArray
 
@@ -32,7 +34,7 @@ def oscillator(freqs_hz: NDArray[np.float64], f0_hz: float, q: float) -> NDArray
     (2000), §10.8.
     """
     x = np.asarray(freqs_hz, dtype=np.float64) / f0_hz
-    return 1.0 / (1.0 - x * x + 1j * x / q)
+    return cast("NDArray[np.complex128]", 1.0 / (1.0 - x * x + 1j * x / q))
 
 
 def inside_outside(freqs_hz: NDArray[np.float64], f0_hz: float, q: float, gain: float,

@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import asdict, dataclass
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -153,7 +154,8 @@ def _start_gains(f: NDArray[np.float64], h: NDArray[np.complex128], w: NDArray[n
     sw = np.sqrt(w)
     step = 0.05 / (2 * np.pi * float(np.max(f)))
     taus = np.arange(-MAX_DELAY_S, MAX_DELAY_S + step, step)
-    best = (math.inf, 0.0, np.zeros(len(peaks), dtype=np.complex128))
+    best: tuple[float, float, Any] = (
+        math.inf, 0.0, np.zeros(len(peaks), dtype=np.complex128))
     for tau in taus:
         b = basis * np.exp(-2j * np.pi * f * tau)[:, None] * sw[:, None]
         y = h * sw
@@ -235,7 +237,7 @@ def fit_modes(tf: TransferFunction, n_modes: int, *, background_order: int = -1,
 
     names = list(params.keys())
 
-    def vec(pv: lmfit.Parameters) -> NDArray[np.float64]:
+    def vec(pv: Any) -> NDArray[np.float64]:
         return np.array([pv[k].value for k in names])
 
     def resid_vec(v: NDArray[np.float64]) -> NDArray[np.float64]:

@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import asdict, dataclass
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -174,7 +175,7 @@ def fit_decay(x: NDArray[np.float64], rate_hz: float, noise_rms: float,
     params.add("c", value=0.0)
     sig = noise_rms
 
-    def resid(p: lmfit.Parameters) -> NDArray[np.float64]:
+    def resid(p: Any) -> NDArray[np.float64]:
         v = p.valuesdict()
         m = v["amp"] * np.exp(-t / v["tau"]) * np.cos(2 * np.pi * v["fd"] * t + v["phi"]) + v["c"]
         return (xs - m) / sig

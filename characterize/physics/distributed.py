@@ -29,7 +29,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any, cast
 
 import numpy as np
 from numpy.typing import NDArray
@@ -239,7 +239,7 @@ _A0 = (1.0, -1.0 / 8.0, 9.0 / 128.0, -225.0 / 3072.0, 11025.0 / 98304.0)
 _A1 = (1.0, 3.0 / 8.0, -15.0 / 128.0, 315.0 / 3072.0, -14175.0 / 98304.0)
 
 
-def bessel_ratio(z: NDArray[np.complex128]) -> NDArray[np.complex128]:
+def bessel_ratio(z: NDArray[np.complexfloating] | NDArray[np.floating]) -> NDArray[np.complex128]:
     r"""The Zwikker-Kosten function :math:`F(z) = 2J_1(z)/(z J_0(z))` for
     :math:`\arg z` near :math:`-\pi/4` (numpy only, no overflow).
 
@@ -327,6 +327,8 @@ def duct_parameters(duct: Duct, omega: NDArray[np.complex128], air: AirState,
     rho, c = air.density_kg_m3, air.speed_of_sound_m_s
     s = duct.area_m2
     w = np.asarray(omega, dtype=np.complex128)
+    fv: Any
+    ft: Any
     if lossless:
         fv = ft = np.zeros_like(w)
     else:
@@ -354,7 +356,8 @@ def _wall_admittance(area_m2: float, omega: NDArray[np.complex128], air: AirStat
         return np.zeros_like(omega)
     rho, c = air.density_kg_m3, air.speed_of_sound_m_s
     nu_t = air.thermal_conductivity_w_mk / (rho * air.cp_j_kgk)
-    return area_m2 * (air.gamma - 1.0) * np.sqrt(1j * omega * nu_t) / (rho * c * c)
+    return cast("NDArray[np.complex128]",
+                area_m2 * (air.gamma - 1.0) * np.sqrt(1j * omega * nu_t) / (rho * c * c))
 
 
 def _through(duct: Duct, y_far: NDArray[np.complex128], omega: NDArray[np.complex128],

@@ -139,6 +139,7 @@ def response_plot(result: Result, path: str | Path) -> Path:
     from ..fitting.models import inside_outside
 
     tf, fit = result.transfer, result.fit
+    assert tf is not None, "response_plot needs a result with a transfer function"
     lo_b, hi_b = fit.band_hz
     span_lo = max(tf.excited_band_hz[0], fit.f0_hz - 4 * (fit.f0_hz - lo_b))
     span_hi = min(tf.excited_band_hz[1], fit.f0_hz + 4 * (hi_b - fit.f0_hz))
@@ -223,6 +224,7 @@ def decay_plot(result: Result, path: str | Path) -> Path:
     """Free decays: the recorded signal of each decay with the fitted envelope."""
     x = result.signal
     fs = result.input.sample_rate_hz
+    assert fs is not None, "decay_plot needs a result from a recording"
     decays = result.decays
     n = max(1, len(decays))
     fig, axes = _figure(n, [1.0] * n, (7.2, 1.0 + 1.8 * n))

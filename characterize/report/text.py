@@ -2,10 +2,11 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from typing import Any
 
 
-def flag_lines(flags: list[Any], none: bool = False) -> list[str]:
+def flag_lines(flags: Sequence[Any], none: bool = False) -> list[str]:
     """The '  flags:' block of a text summary; ``flags`` are Flag objects or their
     dicts. With ``none``, an empty list prints '  flags: none'."""
     if not flags:

@@ -99,7 +99,7 @@ def peak_search_values(tf: TransferFunction) -> NDArray[np.complex128]:
     return np.where(noisy, np.nan, h)
 
 
-def estimate_peak(freqs_hz: NDArray[np.float64], h: NDArray[np.complex128],
+def estimate_peak(freqs_hz: NDArray[np.float64], h: NDArray[np.complexfloating],
                   band_hz: tuple[float, float]) -> tuple[float, float]:
     """Rough f0 and Q from |H|: the largest peak inside ``band_hz`` and its
     half-power width (interpolated). Used for start values and windows only.

@@ -51,7 +51,7 @@ WELCH_BLOCK_SAMPLES = 2**21
 
 
 def welch_spectra(x: NDArray[np.floating], y: NDArray[np.floating], rate_hz: float,
-                  nperseg: int) -> tuple[NDArray[np.float64], NDArray[np.complex128],
+                  nperseg: int) -> tuple[NDArray[np.floating], NDArray[np.complex128],
                                          NDArray[np.float64], NDArray[np.float64]]:
     """Welch's averaged cross- and auto-spectra G_xy, G_xx, G_yy (one-sided
     densities), as scipy.signal.csd and welch compute them with a periodic Hann
@@ -96,7 +96,7 @@ def welch_spectra(x: NDArray[np.floating], y: NDArray[np.floating], rate_hz: flo
     return np.fft.rfftfreq(m, 1 / rate_hz), gxy * k, gxx * k, gyy * k
 
 
-def cross_spectral_transfer(inside: NDArray[np.float64], outside: NDArray[np.float64],
+def cross_spectral_transfer(inside: NDArray[np.floating], outside: NDArray[np.floating],
                             rate_hz: float, *, nperseg: int | None = None,
                             estimator: str = "h1") -> TransferFunction:
     """H1 = G_xy/G_xx or H2 = G_yy/G_yx (x outside, y inside) with Welch
@@ -140,7 +140,8 @@ def cross_spectral_transfer(inside: NDArray[np.float64], outside: NDArray[np.flo
         excited = f[gxx > 1e-6 * level] if np.any(gxx > 0) else f
         lo = max(float(excited[1]) if excited.size > 1 else f[1], 2 * rate_hz / m)
         hi = min(float(excited[-1]) if excited.size else rate_hz / 2, 0.45 * rate_hz)
-        return TransferFunction(f, h.astype(np.complex128), np.zeros_like(f), rel2, (lo, hi),
+        return TransferFunction(np.asarray(f, dtype=np.float64), h.astype(np.complex128),
+                                np.zeros_like(f), rel2, (lo, hi),
                                 f"cross-spectral-{estimator}",
                                 10 * np.log10(np.maximum(gxx, 1e-300)),
                                 coherence=coh, averages=int(n_seg),

@@ -52,7 +52,7 @@ def _fast_below(n: int) -> int:
     return int(n)
 
 
-def _noise_power(seg: NDArray[np.float64], n_out: int, rate_hz: float,
+def _noise_power(seg: NDArray[np.floating], n_out: int, rate_hz: float,
                  present_until: NDArray[np.float64] | None = None,
                  offset: int = 0, shape: NDArray[np.float64] | None = None
                  ) -> NDArray[np.float64]:
@@ -106,7 +106,7 @@ def _argmax_abs(x: NDArray[np.floating], block: int = 1 << 22) -> int:
     return where
 
 
-def find_onset(ir: NDArray[np.float64], rate_hz: float, max_lookback: int) -> int:
+def find_onset(ir: NDArray[np.floating], rate_hz: float, max_lookback: int) -> int:
     """Index where a (circular) impulse response starts: search back from its
     peak, at most ``max_lookback`` samples, to where its envelope (a 0.5 ms
     running maximum of |ir|) falls below ``ONSET_THRESHOLD`` of the peak or
@@ -190,7 +190,7 @@ class Impulse:
 
 def harmonic_distortion(ir: Impulse, onset: int, pre: int, sweep: Sweep,
                         rate_hz: float, freqs_hz: NDArray[np.float64], max_length: int,
-                        fundamental: NDArray[np.complex128]) -> NDArray[np.float64]:
+                        fundamental: NDArray[np.complexfloating]) -> NDArray[np.float64]:
     """THD against excitation frequency from the harmonic impulse responses.
 
     After deconvolution of an exponential sweep, the n-th harmonic's response
@@ -274,9 +274,9 @@ def first_reflection(ir: Impulse, onset: int, rate_hz: float, lo_hz: float,
 NOTCH_DEPTH_DB = 20.0
 
 
-def _mask_notches(f: NDArray[np.float64], h: NDArray[np.complex128],
-                  out: NDArray[np.complex128], band: tuple[float, float]
-                  ) -> NDArray[np.complex128]:
+def _mask_notches(f: NDArray[np.floating], h: NDArray[np.complexfloating],
+                  out: NDArray[np.complexfloating], band: tuple[float, float]
+                  ) -> NDArray[np.complexfloating]:
     sel = (f >= band[0]) & (f <= band[1])
     p = np.abs(out) ** 2
     if not np.any(sel):
@@ -285,7 +285,7 @@ def _mask_notches(f: NDArray[np.float64], h: NDArray[np.complex128],
     return np.where(p >= ref * 10 ** (-NOTCH_DEPTH_DB / 10), h, np.nan)
 
 
-def decay_end(seg: NDArray[np.float64], rate_hz: float, noise_from: int, noise_to: int) -> int:
+def decay_end(seg: NDArray[np.floating], rate_hz: float, noise_from: int, noise_to: int) -> int:
     """Sample at which an impulse response has decayed into its noise: the last
     5 ms block before ``noise_from`` whose rms exceeds three times the median
     block rms between ``noise_from`` and ``noise_to`` (the noise floor there)."""
@@ -426,16 +426,18 @@ def _deconvolve(inside: NDArray[np.floating], outside: NDArray[np.floating] | No
 
     if outside is None:
         ir_in = Impulse(n_fft, response(inside))
+        assert ir_in.whole is not None
         onset = find_onset(ir_in.whole, rate_hz, max_lookback=adv2 // 2)
         ir_in.keep(_stretches(sweep, rate_hz, n, n_fft, onset, True))
         df = rate_hz / n_fft
-        limit = band_response(df, rate_hz / 2, lo_b, hi_b)
-        work.apply(lambda k, v: limit(k * df), edge=lambda v: 0j)
+        limit_at = band_response(df, rate_hz / 2, lo_b, hi_b)
+        work.apply(lambda k, v: limit_at(k * df), edge=lambda v: 0j)
         work.inverse()
         ir_out = Impulse(n_fft, work.signal)
         ir_out.keep(_stretches(sweep, rate_hz, n, n_fft, onset, True), shift=onset)
     else:
         ir_out = Impulse(n_fft, response(outside))
+        assert ir_out.whole is not None
         onset = find_onset(ir_out.whole, rate_hz, max_lookback=adv2 // 2)
         ir_out.keep(_stretches(sweep, rate_hz, n, n_fft, onset, False))
         ir_in = Impulse(n_fft, response(inside))
@@ -474,13 +476,13 @@ def sweep_transfer(inside: NDArray[np.floating], outside: NDArray[np.floating] |
     def spectra(length: int, dtype: type = np.float64
                 ) -> tuple[NDArray[np.float64], NDArray[np.complexfloating],
                            NDArray[np.complexfloating], NDArray[np.floating]]:
-        w = np.ones(length, dtype=dtype)
+        w: NDArray[np.floating] = np.ones(length, dtype=dtype)
         w[:pre] = 0.5 * (1 - np.cos(np.pi * np.arange(pre) / pre))
         n_taper = max(2, length // 20)
         w[-n_taper:] = 0.5 * (1 + np.cos(np.pi * (np.arange(n_taper) + 1) / n_taper))
         fi = sfft.rfft(seg_in[:length] * w)
         fo = sfft.rfft(seg_out[:length] * w)
-        return np.fft.rfftfreq(length, 1 / rate_hz), fi, fo, w
+        return np.asarray(np.fft.rfftfreq(length, 1 / rate_hz), dtype=np.float64), fi, fo, w
 
     f0_est: float | None = None
     tau = math.nan

@@ -168,7 +168,7 @@ def textbook_end_correction_m(obj: ResonatorObject, air: AirState) -> float:
     return predict(obj, air).end_correction_m
 
 
-def _build(cls: type, data: Mapping[str, Any], renames: Mapping[str, str] | None = None,
+def _build(cls: type, data: Mapping[str, Any], *, renames: Mapping[str, str] | None = None,
            **extra: Any) -> Any:
     """A geometry dataclass from its ``to_dict()`` output: the keys that are fields."""
     names = {f.name for f in fields(cls)}
@@ -198,10 +198,10 @@ def _object_from_doc(doc: Mapping[str, Any], source: str) -> ResonatorObject | N
     _number(o, "neck.diameter_m", where, positive=True)
     _number(o, "neck.length_m", where, positive=True)
     cav, neck = o["cavity"], o["neck"]
-    air = o.get("air") if isinstance(o.get("air"), Mapping) else {}
+    air: Mapping[str, Any] = o["air"] if isinstance(o.get("air"), Mapping) else {}
     try:
         sections = tuple((float(d), float(ln)) for d, ln in cav.get("sections_m") or ())
-        cavity = _build(Cavity, cav, **({"sections": sections} if sections else {}))
+        cavity = _build(Cavity, cav, sections=sections) if sections else _build(Cavity, cav)
         return _build(ResonatorObject, o, cavity=cavity, neck=_build(Neck, neck),
                       air=_build(AirOverrides, air),
                       name=str(o.get("name") or Path(source).stem),
