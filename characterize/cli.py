@@ -114,7 +114,7 @@ def sweep(out: Path, force: bool, as_json: bool, **kw: Any) -> None:
                                            subtype="PCM_24", format="WAV"))
     atomic_write_text(side, sidecar_text(params))
     if as_json:
-        from . import __version__
+        from ._version import __version__
         from .report.document import to_json
 
         click.echo(to_json({"schema": "characterize.sweep/1", "tool_version": __version__,

@@ -82,7 +82,7 @@ def calibration_document(cal: Any) -> dict[str, Any]:
     """The ``calibrate --json`` document: what the calibration file holds."""
     from dataclasses import asdict
 
-    from .. import __version__
+    from .._version import __version__
 
     return {"schema": "characterize.calibration/1", "tool_version": __version__,
             "channels": [asdict(c) for _, c in sorted(cal.channels.items())],

@@ -526,7 +526,7 @@ def mouth_impedance(bore: Bore, omega: NDArray[np.complex128], air: AirState,
             if dm:
                 small = min(duct.far_area_m2, ducts[i + 1].area_m2)
                 y1 = 1.0 / (1.0 / y1 + 1j * w * rho * dm / small)
-    return 1.0 / y1
+    return cast("NDArray[np.complex128]", 1.0 / y1)
 
 
 def radiation_impedance(bore: Bore, omega: NDArray[np.complex128], air: AirState,
