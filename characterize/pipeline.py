@@ -423,6 +423,7 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
             from .fitting.record import record_transfer_fit
 
             def match(f: np.ndarray) -> np.ndarray:
+                assert cal is not None and cal.relative is not None  # only passed then
                 return cal.relative.correction(f, inside, outside)
 
             record_fit, tf = record_transfer_fit(

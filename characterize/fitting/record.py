@@ -48,7 +48,7 @@ from numpy.typing import NDArray
 
 from ..errors import FitError
 from ..transfer import TransferFunction, estimate_peak
-from .fit import MAX_DELAY_S, FitResult, initial_delay_and_sign
+from .fit import FitResult, initial_delay_and_sign
 from .models import oscillator
 
 #: Neighbouring DFT bins averaged in the smoothed estimate used to find the peak
@@ -98,7 +98,7 @@ def _spectra(inside: NDArray[np.floating], outside: NDArray[np.floating], rate_h
     y = np.asarray(inside[:n], dtype=np.float64)
     x -= x.mean()
     y -= y.mean()
-    return np.fft.rfftfreq(n, 1 / rate_hz), sfft.rfft(x), sfft.rfft(y)
+    return np.asarray(np.fft.rfftfreq(n, 1 / rate_hz), dtype=np.float64), sfft.rfft(x), sfft.rfft(y)
 
 
 def _smoothed(f: NDArray[np.float64], x: NDArray[np.complex128], y: NDArray[np.complex128],
@@ -344,7 +344,7 @@ def record_transfer_fit(inside: NDArray[np.floating], outside: NDArray[np.floati
         noise_a = noise_y / gxx
         noise_b = noise_x / gxx
     h = np.where(np.isfinite(h), h, np.nan + 0j)
-    offsets = (np.arange(k) - (k - 1) / 2) * df
+    offsets = np.asarray((np.arange(k) - (k - 1) / 2) * df, dtype=np.float64)
     tf = TransferFunction(
         freqs_hz=fc, h=h.astype(np.complex128), noise_a=noise_a, noise_b=noise_b,
         excited_band_hz=(lo, hi), method=f"cross-spectral-{estimator}",
