@@ -162,7 +162,7 @@ def response_plot(result: Result, path: str | Path) -> Path:
             coh = coh[np.linspace(0, coh.size - 1, 3000).round().astype(int)]
     if coh is None:
         fig, (ax_m, ax_p, ax_r) = _figure(3, [3, 2, 1.3], (7.2, 7.0))
-        panels = (ax_m, ax_p, ax_r)
+        panels: tuple[Any, ...] = (ax_m, ax_p, ax_r)
     else:
         fig, (ax_m, ax_p, ax_c, ax_r) = _figure(4, [3, 2, 1.3, 1.3], (7.2, 8.2))
         panels = (ax_m, ax_p, ax_c, ax_r)
