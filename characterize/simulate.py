@@ -98,6 +98,21 @@ def true_transfer(setup: Setup, freqs_hz: NDArray[np.floating]) -> NDArray[np.co
     return sign * setup.gain * h * np.exp(-2j * np.pi * f * setup.delay_s)
 
 
+def speaker_room_response(setup: Setup, freqs_hz: NDArray[np.float64]
+                          ) -> NDArray[np.complex128]:
+    """From the excitation to the pressure at the mouth: the loudspeaker (a
+    2nd-order Butterworth high-pass at ``loudspeaker_highpass_hz`` and a
+    1st-order low-pass at 12 kHz) times the room (direct sound plus the
+    ``reflections``, each a delay and a gain)."""
+    f = np.asarray(freqs_hz, dtype=np.float64)
+    s = 1j * f / setup.loudspeaker_highpass_hz
+    speaker = s**2 / (s**2 + math.sqrt(2) * s + 1) / (1 + 1j * f / 12000.0)
+    room = np.ones_like(f, dtype=np.complex128)
+    for d, g in setup.reflections:
+        room = room + g * np.exp(-2j * np.pi * f * d)
+    return speaker * room
+
+
 def default_sweep(setup: Setup) -> SweepParams:
     """A sweep suited to the setup: two octaves below to two above f0 at least,
     long enough (and with a tail long enough) for the ringing to decay."""
@@ -138,13 +153,7 @@ def simulate(setup: Setup, seed: int | np.random.Generator = 0
     n_fft = _fast_len(n_rec + n_pad)
     f = np.fft.rfftfreq(n_fft, 1 / fs)
     e = np.fft.rfft(np.concatenate([np.zeros(n_lat), exc]), n_fft)
-    # loudspeaker: 2nd-order Butterworth high-pass and a 1st-order low-pass at 12 kHz
-    s = 1j * f / setup.loudspeaker_highpass_hz
-    speaker = s**2 / (s**2 + math.sqrt(2) * s + 1) / (1 + 1j * f / 12000.0)
-    room = np.ones_like(f, dtype=np.complex128)
-    for d, g in setup.reflections:
-        room = room + g * np.exp(-2j * np.pi * f * d)
-    pe = e * speaker * room
+    pe = e * speaker_room_response(setup, f)
     outside = np.fft.irfft(pe, n_fft)[:n_rec] * setup.gain_outside
     inside = np.fft.irfft(pe * true_transfer(setup, f), n_fft)[:n_rec] * setup.gain_outside
     a2, a3 = setup.inside_polynomial
