@@ -25,6 +25,8 @@ COMMANDS = {
     "selftest": "selftest",
     "compare": "compare",
 }
+#: modules holding several commands: module -> attributes
+GROUPED = {"live": ("devices", "measure", "tune")}
 
 
 def register(group: click.Group) -> None:
@@ -33,3 +35,7 @@ def register(group: click.Group) -> None:
         if importlib.util.find_spec(name) is None:
             continue
         group.add_command(getattr(importlib.import_module(name), attr))
+    for module, attrs in GROUPED.items():
+        mod = importlib.import_module(f"{__name__}.{module}")
+        for attr in attrs:
+            group.add_command(getattr(mod, attr))
