@@ -61,7 +61,7 @@ def _interrupted(saved: list[Path], where: Path) -> None:
 
 def measure_options(fn: Any) -> Any:
     """The options ``measure`` and ``tune`` share."""
-    from ..live.measure import DEFAULT_LEVEL_DBFS, DEFAULT_MAX_LEVEL_DBFS
+    from ..live.defaults import DEFAULT_LEVEL_DBFS, DEFAULT_MAX_LEVEL_DBFS
 
     opts = [
         click.option("--device", "device", default=None, metavar="N|NAME|simulate",

@@ -36,14 +36,10 @@ from numpy.typing import NDArray
 from ..errors import FitError, InputError
 from ..excitation import Sweep, SweepParams
 from .bench import Bench
+from .defaults import DEFAULT_LEVEL_DBFS, DEFAULT_MAX_LEVEL_DBFS
 from .stream import RawTake, TakeInterrupted
 from .takes import CLIP_DBFS, TakeCheck, check_take
 
-#: Default sweep level, dBFS peak: low, so that a first take is never loud.
-DEFAULT_LEVEL_DBFS = -30.0
-#: Default ceiling for the output level, dBFS: nothing louder is ever played
-#: unless --max-level is raised on purpose.
-DEFAULT_MAX_LEVEL_DBFS = -12.0
 #: The probe plays this much below the sweep level, dB.
 PROBE_BELOW_DB = 12.0
 #: The probe's sweep lasts this long, s.
@@ -507,11 +503,12 @@ def _probe(rec: _Recorder, params: SweepParams, level: float) -> tuple[float, di
 
 
 def _silent_error(rec: _Recorder) -> None:
-    rate = rec.bench.default_rate_hz
-    hint = (f"the device probably runs at another rate (its default is {rate:g} Hz: try "
-            f"--rate {rate:g})" if rec.rate != rate else "the device may run at another rate")
+    own = rec.bench.default_rate_hz
+    hint = (f"the device probably runs at another rate than {rec.rate:g} Hz (it reports "
+            f"{own:g} Hz; a sound server may use its own, often 48000): give that rate with "
+            "--rate")
     raise InputError("--device", None, f"every try came back all zeros on the microphone "
-                     f"inputs: {hint}, or the microphones are not connected (inputs "
+                     f"inputs: {hint}; or the microphones are not connected (inputs "
                      f"{rec.s.inside} and {rec.s.outside}); kept in {rec.out}")
 
 
