@@ -365,11 +365,11 @@ def tune(object_path: Path, target_hz: float, route: str, tolerance: str, max_st
             if st.within:
                 break
             if auto:
-                if not (st.advised == st.advised) or (route == "neck" and st.advised <= 0):
+                made = session.auto_change(st)
+                if made is None:
                     click.echo("  the advised change cannot be made on this route; stopping")
                     break
-                click.echo(f"  (auto) made the change: {st.advised * k:.3f} {unit}")
-                session.record_change(st.advised)
+                click.echo(f"  (auto) made the change: {made * k:.3f} {unit}")
                 continue
             while True:
                 try:

@@ -8,11 +8,13 @@ PortAudio (:class:`DeviceBench`) and the simulated bench
 
 from __future__ import annotations
 
+import math
 from typing import Any, Protocol
 
 import numpy as np
 from numpy.typing import NDArray
 
+from ..errors import InputError
 from .devices import DeviceInfo, check_rate
 from .stream import RawTake, play_record
 
@@ -69,14 +71,45 @@ class DeviceBench:
                 "max_output_channels": self.outputs, "default_rate_hz": self.default_rate_hz}
 
 
+#: ``--device simulate:KEY=VALUE,...`` keys -> SimulatedBench arguments.
+SIMULATE_KEYS = {"end_correction": "end_correction_factor", "volume": "volume_factor",
+                 "q": "q_factor", "dropouts": "dropout_probability"}
+
+
+def parse_simulate(spec: str) -> dict[str, float] | None:
+    """``simulate`` or ``simulate:end_correction=1.2,volume=0.98,q=1,dropouts=0`` ->
+    keyword arguments of the simulated bench; None when ``spec`` is not a simulation."""
+    head, _, rest = spec.strip().partition(":")
+    if head.lower() != "simulate":
+        return None
+    kw: dict[str, float] = {}
+    for item in filter(None, (x.strip() for x in rest.split(","))):
+        key, eq, value = item.partition("=")
+        if not eq or key.strip() not in SIMULATE_KEYS:
+            raise InputError("--device", None, f"simulate takes {', '.join(SIMULATE_KEYS)} "
+                             f"(e.g. simulate:end_correction=1.2), got {item!r}")
+        try:
+            v = float(value)
+        except ValueError:
+            raise InputError("--device", None, f"{key}: expected a number, got {value!r}") \
+                from None
+        if not (math.isfinite(v) and v >= 0) or (key != "dropouts" and v == 0) \
+                or (key == "dropouts" and v > 1):
+            raise InputError("--device", None, f"{key}: out of range: {value!r}")
+        kw[SIMULATE_KEYS[key.strip()]] = v
+    return kw
+
+
 def open_bench(spec: str | None, *, inputs: int, outputs: int, object_path: Any = None,
                seed: int = 0) -> Bench:
-    """The bench for ``--device``: ``simulate`` for the simulated bench (needs the
-    object file), else a device number or name (None: the default device)."""
-    if spec is not None and spec.strip().lower() == "simulate":
+    """The bench for ``--device``: ``simulate[:KEY=VALUE,...]`` for the simulated
+    bench (needs the object file; keys in :data:`SIMULATE_KEYS`), else a device
+    number or name (None: the default device)."""
+    sim = parse_simulate(spec) if spec is not None else None
+    if sim is not None:
         from .simbench import SimulatedBench
 
-        return SimulatedBench.from_object_file(object_path, seed=seed)
+        return SimulatedBench.from_object_file(object_path, seed=seed, **sim)
     from .devices import find_device
 
     return DeviceBench(find_device(spec, inputs=inputs, outputs=outputs))

@@ -86,7 +86,7 @@ def parse_change(text: str, route: str) -> float:
         return float(t) / factor
     except ValueError:
         pass
-    return parse_quantity(t, kind, "input", "change")
+    return parse_quantity(t, kind, "input", "change", positive=False)
 
 
 @dataclass
@@ -341,6 +341,15 @@ class TuneSession:
             return
         step.series, step.advised, step.advised_stderr = series, advised, se
         step.advice_from = "series"
+
+    def auto_change(self, step: Step) -> float | None:
+        """On the simulated bench: make the advised change (returns it), or None
+        when it cannot be made on this route (no advice, or a neck to lengthen)."""
+        a = step.advised
+        if not math.isfinite(a) or (self.route == "neck" and a <= 0):
+            return None
+        self.record_change(a)
+        return a
 
     # ------------------------------------------------------------- outputs
     def _log(self, row: dict[str, Any]) -> None:

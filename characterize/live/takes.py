@@ -203,7 +203,11 @@ def check_take(recorded: NDArray[np.floating], played: NDArray[np.floating], rat
         retry = retry or "post-roll"
     lo, hi = max(s0, dead), min(n, s0 + n_sweep)
     for c in chans:
-        for start, length in _zero_runs(y[lo:hi, c - 1], GAP_MIN_RUN):
+        # during the sweep always; in the tail too when the channel has real noise
+        # (no zero runs before the sweep arrived: a bit-exact loopback's tail is zeros)
+        noisy = s0 - dead > GAP_MIN_RUN and not _zero_runs(y[dead:s0, c - 1], GAP_MIN_RUN)
+        end = min(n, s0 + n_total) if noisy else hi
+        for start, length in _zero_runs(y[lo:end, c - 1], GAP_MIN_RUN):
             problems.append(f"gap: {length} zero samples at {(lo + start) / fs:.3f} s on "
                             f"input {c} (a dropout)")
             break
