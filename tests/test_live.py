@@ -229,7 +229,8 @@ def test_tune_auto_reaches_3_percent_up_with_end_correction_20_percent_off(tmp_p
     log = (out / "log.csv").read_text().splitlines()
     assert log[0].startswith("step,event,f0_hz")
     assert any(r.split(",")[1] == "change" for r in log[1:])
-    assert (out / "step-01" / "result.json").exists() and (out / "step-01" / "take-01.flac").exists()
+    assert (out / "step-01" / "result.json").exists()
+    assert (out / "step-01" / "take-01.flac").exists()
     doc = json.loads((out / "step-01" / "result.json").read_text())
     assert doc["tune"]["advice_from"] == "trim" and "measurement" in doc
 
@@ -433,6 +434,25 @@ def test_no_such_device_and_too_few_inputs(monkeypatch, tmp_path):
         code, _, err = run("measure", "--object", JAR, "--device", spec, "--out",
                            tmp_path / spec)
         one_line_error(code, err, needle)
+
+    class PortAudioError(Exception):
+        pass
+
+    def check_settings(device=None, channels=None, samplerate=None, dtype=None):
+        if samplerate != 48000.0:
+            raise PortAudioError("Invalid sample rate [PaErrorCode -9997]")
+
+    def busy_stream(**kw):
+        raise PortAudioError("Error opening Stream: Device unavailable [PaErrorCode -9985]")
+
+    fake.PortAudioError = PortAudioError
+    fake.check_input_settings = fake.check_output_settings = check_settings
+    fake.Stream = busy_stream
+    code, _, err = run("measure", "--object", JAR, "--device", "USB", "--rate", "44100",
+                       "--out", tmp_path / "rate")
+    one_line_error(code, err, "--rate", "44100", "--rate 48000")
+    code, _, err = run("measure", "--object", JAR, "--device", "USB", "--out", tmp_path / "busy")
+    one_line_error(code, err, "busy", "close the other program")
 
 
 def test_importing_the_cli_loads_no_portaudio():

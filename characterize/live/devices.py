@@ -150,6 +150,7 @@ def check_rate(dev: DeviceInfo, rate_hz: float, inputs: int, outputs: int) -> No
                              f"{rate_hz:g} Hz ({text}): use its own rate, --rate "
                              f"{dev.default_rate_hz:g}") from None
         raise InputError("--device", None, f"device {dev.index} {dev.name!r} refuses these "
-                         f"settings ({text}): check it is not in use by another program")
+                         f"settings ({text}): check it is not in use by another program") \
+            from None
     except ValueError as exc:
         raise InputError("--device", None, f"device {dev.index} {dev.name!r}: {exc}") from None

@@ -160,7 +160,10 @@ class Measurement:
         f0 = np.array([f.f0_hz for f in fits])
         q = np.array([f.q for f in fits])
         n = len(fits)
-        sd = (lambda a: float(np.std(a, ddof=1)) if n > 1 else math.nan)
+
+        def sd(a: Any) -> float:
+            return float(np.std(a, ddof=1)) if n > 1 else math.nan
+
         return {"n": n, "f0_mean_hz": float(f0.mean()), "f0_spread_hz": sd(f0),
                 "f0_mean_stderr_hz": sd(f0) / math.sqrt(n) if n > 1 else math.nan,
                 "f0_fit_stderr_hz": float(np.mean([f.f0_stderr_hz for f in fits])),
@@ -204,8 +207,8 @@ def plan_sweep(obj: Any, air: Any, s: MeasureSettings, rate_hz: float, level_dbf
     if obj is not None and (s.start_hz is None or s.stop_hz is None or s.tail_s is None):
         from ..physics.helmholtz import predict
 
-        p = predict(obj, air)
-        f0, q = p.f0_hz, p.q_predicted
+        pred = predict(obj, air)
+        f0, q = pred.f0_hz, pred.q_predicted
     if (s.start_hz is None or s.stop_hz is None) and f0 is None:
         raise InputError("--start/--stop", None, "give the sweep's band, or --object so it "
                          "can be chosen around the predicted f0")
@@ -527,8 +530,8 @@ def _take(rec: _Recorder, number: int, params: SweepParams | None, given: Sweep 
             sweep, sweep_file = _sweep_file(rec.out, replace(params, level_dbfs=level))
         raw, path, side, lead = rec.play(sweep.samples, name, "sweep", level, sweep_file)
         check = check_take(raw.recorded[:raw.frames],
-                           _reference(sweep.samples, lead, raw.frames), rec.rate, s.inside, s.outside,
-                           sweep.params, lead, raw.status)
+                           _reference(sweep.samples, lead, raw.frames), rec.rate, s.inside,
+                           s.outside, sweep.params, lead, raw.status)
         if not any("nothing" in p for p in check.problems):
             all_silent = False
         extra = {"check": check.to_dict(), "accepted": check.ok, "attempt": attempt}

@@ -32,7 +32,7 @@ from pathlib import Path
 from typing import Any
 
 from ..errors import FitError, InputError
-from .measure import MeasureSettings, Measurement, measure
+from .measure import Measurement, MeasureSettings, measure
 
 ROUTES = ("neck", "volume", "diameter")
 #: Steps at distinct values of the varied quantity before the series refines the advice.

@@ -221,7 +221,7 @@ class SimulatedBench:
         latency = int(round(self.rng.choice(SIM_LATENCIES_48K) * scale))
         tau = truth["q"] / (math.pi * truth["f0_hz"])
         n_fft = next_fast_len(n + latency + int(40 * tau * fs) + int(0.1 * fs), real=True)
-        f = np.fft.rfftfreq(n_fft, 1 / fs)
+        f = np.fft.rfftfreq(n_fft, 1 / fs).astype(np.float64)
         spec = rfft(x, n_fft) * speaker_room_response(setup, f) * SIM_OUTSIDE_GAIN
         outside = irfft(spec, n_fft)
         inside = irfft(spec * true_transfer(setup, f), n_fft)
