@@ -344,7 +344,7 @@ def tune(object_path: Path, target_hz: float, route: str, tolerance: str, max_st
     Changes are what you did: for --route neck the length cut off; volume: the
     liquid poured in (negative: taken out); diameter: how much wider the bore is.
     """
-    from ..errors import InputError
+    from ..errors import FitError, InputError
     from ..live.measure import MeasureInterrupted
     from ..live.session import TuneSession, parse_change, parse_tolerance
 
@@ -359,12 +359,21 @@ def tune(object_path: Path, target_hz: float, route: str, tolerance: str, max_st
     _caution(bench)
     _, unit, k = _unit(route)
     try:
-        while len(session.steps) < max_steps:
-            st = session.measure_step()
-            click.echo(_step_text(session, st))
-            if st.within:
-                break
-            if auto:
+        attempts = 0
+        while len(session.steps) < max_steps and attempts < 2 * max_steps:
+            attempts += 1
+            try:
+                st = session.measure_step()
+            except FitError as exc:  # the takes are kept; the bench decides what next
+                click.echo(f"  no fit at this step: {exc}", err=True)
+                if auto:
+                    break
+                st = None
+            if st is not None:
+                click.echo(_step_text(session, st))
+                if st.within:
+                    break
+            if auto and st is not None:
                 made = session.auto_change(st)
                 if made is None:
                     click.echo("  the advised change cannot be made on this route; stopping")

@@ -188,6 +188,7 @@ class TuneSession:
             raise InputError("--route", None, "the diameter route needs a round neck or hole")
         self.object_path = Path(object_path)
         self.steps: list[Step] = []
+        self.folders = 0
         self.cumulative = 0.0
         self.log_rows: list[dict[str, Any]] = []
         self.out.mkdir(parents=True, exist_ok=True)
@@ -245,7 +246,7 @@ class TuneSession:
             self.bench.apply_change(self.route, amount)
         self.cumulative += amount
         _, unit, k = route_unit(self.route)
-        self._log({"step": len(self.steps), "event": "change", "change": amount * k,
+        self._log({"step": self.folders, "event": "change", "change": amount * k,
                    "cumulative_change": self.cumulative * k, "unit": unit})
 
     # ---------------------------------------------------------------- steps
@@ -254,7 +255,8 @@ class TuneSession:
         from ..report.document import write_document
         from ..tuning import advise_trim, result_from_dict
 
-        k = len(self.steps) + 1
+        self.folders += 1  # a step that failed keeps its folder (and its takes)
+        k = self.folders
         folder = self.out / f"step-{k:02d}"
         folder.mkdir(parents=True, exist_ok=True)
         obj_path = self._write_object(folder)
