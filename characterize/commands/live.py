@@ -351,10 +351,12 @@ def tune(object_path: Path, target_hz: float, route: str, tolerance: str, max_st
     settings = _settings(kw)
     tol_hz = parse_tolerance(tolerance, target_hz) if target_hz > 0 else 0.0
     out = out_dir or _default_out("tune")
-    bench = _bench(kw, object_path, settings)
-    if auto and bench.kind != "simulated":
+    from ..live.bench import parse_simulate
+
+    if auto and parse_simulate(kw["device"] or "") is None:
         raise InputError("--auto", None, "only with --device simulate: on a real bench you "
                          "make the change and type it")
+    bench = _bench(kw, object_path, settings)
     session = TuneSession(bench, object_path, target_hz, route, tol_hz, out, settings, say=_say)
     _caution(bench)
     _, unit, k = _unit(route)

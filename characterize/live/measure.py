@@ -52,9 +52,9 @@ CLIP_STEP_DB = 6.0
 #: sweep's level is too quiet.
 MIN_SNR_DB = 30.0
 #: Silence played before the sweep, s: longer than the device's dead start
-#: (75 ms on the loopback, shared/reference) and doubled when a take shows it
-#: was not.
-DEFAULT_LEAD_IN_S = 0.5
+#: (75 ms on the loopback, 0.43 s with a 0.2 s latency setting: shared/reference)
+#: and doubled when a take shows it was not.
+DEFAULT_LEAD_IN_S = 0.75
 #: Silence played after the sweep's tail, s: longer than the latency.
 DEFAULT_POST_ROLL_S = 0.5
 #: Tries per take before giving up.
