@@ -178,19 +178,26 @@ def test_measure_through_portaudio_recovers_resonator_and_retries_a_gap(loopback
     assert np.max(np.abs(inside)) > 4 * np.max(np.abs(outside))  # ~Q x 0.5 at resonance
 
 
-def test_measure_at_a_rate_the_sink_does_not_run_gets_silence_and_says_so(loopback, tmp_path):
-    """A rate other than the sink's gives an all-zero recording with no exception
-    (the note): measure must see it in the recording, retry, then stop with exit 2
-    and the fix, keeping every try."""
-    out = tmp_path / "wrong-rate"
+def test_a_silent_input_is_retried_then_refused_in_one_line(loopback, tmp_path):
+    """The sweep on output 1 only: input 2 (the sink monitor's second channel) comes
+    back all zeros, as the note measured for a silent channel (and as a disconnected
+    microphone on a digital input would). measure must see it in the recording,
+    retry, then stop with exit 2 naming the input and the fixes, keeping every try.
+
+    (The note also found that a rate other than the sink's records all zeros; on
+    this machine under heavy load, with the 0.2 s stream buffer, 44.1 kHz against
+    the 48 kHz sink sometimes recorded real data after two silent tries, so that
+    case is not a deterministic test here; tests/test_live.py covers silent takes.)"""
+    out = tmp_path / "silent"
     proc = _characterize(["measure", "--object", str(OBJECT), "--device", "pulse", "--rate",
-                          "44100", "--output", "1,2", "--duration", "0.5", "--out", str(out)],
-                         loopback)
+                          str(SINK_RATE), "--output", "1", "--duration", "0.5", "--out",
+                          str(out)], loopback)
     assert proc.returncode == 2, proc.stderr[-2000:]
     err = [ln for ln in proc.stderr.splitlines() if ln.startswith("characterize: error")]
-    assert len(err) == 1 and "all zeros" in err[0] and "--rate" in err[0], proc.stderr[-2000:]
+    assert len(err) == 1 and "all zeros on input 2" in err[0] and "--rate" in err[0], \
+        proc.stderr[-2000:]
     assert "Traceback" not in proc.stderr
-    assert len(list(out.glob("probe*.flac"))) >= 2  # every try kept
+    assert len(list(out.glob("probe*.flac"))) == 4  # every try kept
 
 
 def test_devices_lists_the_pulse_device(loopback):

@@ -38,7 +38,7 @@ from ..excitation import Sweep, SweepParams
 from .bench import Bench
 from .defaults import DEFAULT_LEVEL_DBFS, DEFAULT_MAX_LEVEL_DBFS
 from .stream import RawTake, TakeInterrupted
-from .takes import CLIP_DBFS, TakeCheck, check_take
+from .takes import CLIP_DBFS, SILENT_PEAK, TakeCheck, check_take
 
 #: The probe plays this much below the sweep level, dB.
 PROBE_BELOW_DB = 12.0
@@ -245,10 +245,10 @@ def validate_settings(s: MeasureSettings) -> None:
         raise InputError("--rate", None, f"must be > 0 Hz, got {s.rate_hz:g}")
 
 
-def _played(sweep: NDArray[np.floating], lead: int, post: int, outputs: tuple[int, ...]
-            ) -> NDArray[np.float32]:
+def _played(sweep: NDArray[np.floating], lead: int, post: int, outputs: tuple[int, ...],
+            width: int) -> NDArray[np.float32]:
     n = lead + sweep.size + post
-    sig = np.zeros((n, max(outputs)), dtype=np.float32)
+    sig = np.zeros((n, max(width, *outputs)), dtype=np.float32)
     for c in outputs:
         sig[lead:lead + sweep.size, c - 1] = sweep
     return sig
@@ -300,6 +300,7 @@ class _Recorder:
         self.messages: list[str] = []
         self.saved: list[Path] = []
         self.lead_in_s, self.post_roll_s = s.lead_in_s, s.post_roll_s
+        self.out_width = max(s.outputs)
 
     def tell(self, text: str) -> None:
         self.messages.append(text)
@@ -324,7 +325,7 @@ class _Recorder:
         """Play, save the raw take and its sidecar first, return them."""
         lead = int(round(self.lead_in_s * self.rate))
         post = int(round(self.post_roll_s * self.rate))
-        sig = _played(samples, lead, post, self.s.outputs)
+        sig = _played(samples, lead, post, self.s.outputs, self.out_width)
         path = _free(self.out / f"{name}.flac")
         side = path.with_suffix(".json")
         try:
@@ -392,7 +393,10 @@ def measure(bench: Bench, object_path: str | Path | None, settings: MeasureSetti
                              relative_humidity=s.relative_humidity, pressure_pa=s.pressure_pa)
     in_channels = max(s.inside, s.outside)
     rate = float(s.rate_hz or bench.default_rate_hz)
-    bench.check(rate, in_channels, max(s.outputs))
+    # at least two output channels where the device has them, silent ones zero: a
+    # one-channel stream may be copied to every output by a sound server
+    out_width = max(max(s.outputs), min(2, int(bench.outputs)))
+    bench.check(rate, in_channels, out_width)
     level = s.level_dbfs
     given: Sweep | None = None
     if s.sweep_path is not None:
@@ -410,6 +414,7 @@ def measure(bench: Bench, object_path: str | Path | None, settings: MeasureSetti
         params = plan_sweep(obj, air, s, rate, level)
     out.mkdir(parents=True, exist_ok=True)
     rec = _Recorder(bench, out, s, rate, in_channels, say, prefix)
+    rec.out_width = out_width
     probe_info = None
     if s.probe and given is None:
         level, probe_info = _probe(rec, params, level)
@@ -466,7 +471,7 @@ def _probe(rec: _Recorder, params: SweepParams, level: float) -> tuple[float, di
             rec.tell(f"level probe: {check.problems[0]}; probing again")
     assert check is not None
     if any("nothing" in p for p in check.problems):
-        _silent_error(rec)
+        _silent_error(rec, check)
     info: dict[str, Any] = {"file": str(path), "level_dbfs": p_level, "check": check.to_dict()}
     if check.delay_samples is None:
         rec.tell("level probe: could not find the probe in the recording; going on at "
@@ -505,14 +510,18 @@ def _probe(rec: _Recorder, params: SweepParams, level: float) -> tuple[float, di
     return new_level, info
 
 
-def _silent_error(rec: _Recorder) -> None:
+def _silent_error(rec: _Recorder, check: TakeCheck | None) -> None:
+    silent = [c for c in (rec.s.inside, rec.s.outside)
+              if check is not None
+              and not check.peaks_dbfs.get(c, -math.inf) > 20 * math.log10(SILENT_PEAK)]
+    which = " and ".join(str(c) for c in silent) or f"{rec.s.inside} and {rec.s.outside}"
     own = rec.bench.default_rate_hz
-    hint = (f"the device probably runs at another rate than {rec.rate:g} Hz (it reports "
-            f"{own:g} Hz; a sound server may use its own, often 48000): give that rate with "
-            "--rate")
-    raise InputError("--device", None, f"every try came back all zeros on the microphone "
-                     f"inputs: {hint}; or the microphones are not connected (inputs "
-                     f"{rec.s.inside} and {rec.s.outside}); kept in {rec.out}")
+    raise InputError("--device", None, f"every try came back all zeros on input {which}: "
+                     f"check that microphone is connected and powered and that --inside/"
+                     f"--outside name its inputs; if no input records anything, the device "
+                     f"probably runs at another rate than {rec.rate:g} Hz (it reports "
+                     f"{own:g} Hz; a sound server may use its own, often 48000): give that "
+                     f"with --rate; every try is kept in {rec.out}")
 
 
 def _take(rec: _Recorder, number: int, params: SweepParams | None, given: Sweep | None,
@@ -565,7 +574,7 @@ def _take(rec: _Recorder, number: int, params: SweepParams | None, given: Sweep 
         elif check.retry == "post-roll":
             rec.post_roll_s *= 2
     if all_silent:
-        _silent_error(rec)
+        _silent_error(rec, check)
     raise FitError(f"{name}: no clean take in {s.max_tries} tries (last: "
                    f"{rejected[-1]['reason']}); every try is kept in {rec.out}")
 
