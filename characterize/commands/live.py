@@ -119,7 +119,7 @@ def _bench(kw: dict[str, Any], object_path: Path | None, settings: Any) -> Any:
 
 
 # ---------------------------------------------------------------------- devices
-@click.command("devices")
+@click.command("devices", short_help="List the audio devices PortAudio sees.")
 @click.option("--json", "as_json", is_flag=True, help="Print the list as JSON.")
 @handles_errors
 def devices(as_json: bool) -> None:
@@ -198,7 +198,7 @@ def _write_fit_outputs(result: Any, doc: dict[str, Any], out: Path) -> list[Path
     return written
 
 
-@click.command("measure")
+@click.command("measure", short_help="Play a sweep, record both microphones and fit, live.")
 @click.option("--object", "object_path", type=click.Path(path_type=Path), required=True,
               help="Object file (TOML): the geometry, and the sweep's band around its f0.")
 @measure_options
@@ -317,7 +317,7 @@ def _summary_text(d: dict[str, Any]) -> str:
     return "\n".join(lines)
 
 
-@click.command("tune")
+@click.command("tune", short_help="The bench loop: measure, advise a change, repeat.")
 @click.option("--object", "object_path", type=click.Path(path_type=Path), required=True,
               help="Object file (TOML) as the session starts.")
 @click.option("--target", "target_hz", type=float, required=True, help="Target f0 (Hz).")
