@@ -38,7 +38,7 @@ LAYERS: list[tuple[str, ...]] = [
     # reports: the only matplotlib user
     ("characterize.report",),
     # batches and comparisons write reports
-    ("characterize.batch", "characterize.compare"),
+    ("characterize.batch", "characterize.compare", "characterize.live"),
     # the command line
     ("characterize.commands", "characterize.cli", "characterize.__main__"),
     # the package face (re-exports the main calls)

@@ -33,7 +33,7 @@ from characterize.live.session import (
 from characterize.live.simbench import SimulatedBench
 from characterize.live.stream import TakeInterrupted
 from characterize.live.takes import check_take, find_delay
-from characterize.physics.geometry import load_object
+from characterize.objectfile import load_object
 
 EX = Path(__file__).resolve().parent.parent / "example_audio"
 JAR = EX / "listening-jar-04.toml"

@@ -385,8 +385,8 @@ def measure(bench: Bench, object_path: str | Path | None, settings: MeasureSetti
     obj = None
     air = None
     if object_path is not None:
+        from ..objectfile import load_object
         from ..physics.conditions import resolve_air
-        from ..physics.geometry import load_object
 
         obj = load_object(object_path)
         air, _ = resolve_air(obj, temperature_c=s.temperature_c,

@@ -168,7 +168,7 @@ class TuneSession:
     def __init__(self, bench: Any, object_path: str | Path, target_hz: float, route: str,
                  tolerance_hz: float, out_dir: str | Path, settings: MeasureSettings,
                  say: Callable[[str], None] = lambda text: None) -> None:
-        from ..physics.geometry import load_object
+        from ..objectfile import load_object
 
         if route not in ROUTES:
             raise InputError("--route", None, f"must be one of {', '.join(ROUTES)}, got "
@@ -203,7 +203,7 @@ class TuneSession:
 
     def _write_object(self, folder: Path) -> Path:
         from ..fileio import atomic_write_text
-        from ..physics.geometry import load_object
+        from ..objectfile import load_object
 
         data = self.obj.to_file_data()
         path = folder / "object.toml"

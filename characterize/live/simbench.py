@@ -124,8 +124,8 @@ class SimulatedBench:
         if path is None:
             raise InputError("--device", None, "simulate needs --object OBJECT.toml (the "
                              "simulated bench measures that object)")
+        from ..objectfile import load_object
         from ..physics.conditions import resolve_air
-        from ..physics.geometry import load_object
 
         obj = load_object(path)
         air, _ = resolve_air(obj)
