@@ -230,6 +230,12 @@ def harmonic_distortion(ir: Impulse, onset: int, pre: int, sweep: Sweep,
 REFLECTION_FRACTION = 0.2
 
 
+#: The one-microphone window ends before the first strong reflection only when it
+#: then still holds this many ringing time constants (a shorter window biases Q,
+#: physics sheet §7); an earlier reflection stays in the window.
+REFLECTION_CUT_TIME_CONSTANTS = 20.0
+
+
 #: Stretch of a one-microphone response read for the first reflection (s, around the onset).
 REFLECTION_SPAN_S = (0.01, 0.25)
 
@@ -506,7 +512,23 @@ def sweep_transfer(inside: NDArray[np.floating], outside: NDArray[np.floating] |
         refl = first_reflection(ir_in, onset, rate_hz, 4 * f0_est, usable_band(p)[1])
         if refl is not None:
             reflection_s = refl / rate_hz
-            length = min(length, max(4 * pre, pre + refl - int(5e-4 * rate_hz)))
+            cut = max(4 * pre, pre + refl - int(5e-4 * rate_hz))
+            # end the window before the reflection only when that leaves the ringing
+            # time to decay (judged on the cut window itself: the long one holds the
+            # room's ripple, and a cut that truncates the ringing broadens the peak,
+            # so it never looks long enough); otherwise the room stays in H and the
+            # fit's background (its order chosen from the data) describes it
+            if cut < length:
+                fc, fi_c, fo_c, _ = spectra(cut)
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    hc = fi_c / fo_c
+                try:
+                    f0_c, q_c = estimate_peak(fc, _mask_notches(fc, hc, fo_c, band), band)
+                except FitError:
+                    q_c = math.inf
+                tau_c = q_c / (math.pi * f0_c) if math.isfinite(q_c) else math.inf
+                if cut >= REFLECTION_CUT_TIME_CONSTANTS * tau_c * rate_hz:
+                    length, tau, f0_est = cut, tau_c, f0_c
     f, fi, fo, w = spectra(length)
     with np.errstate(divide="ignore", invalid="ignore"):
         h = fi / fo
@@ -547,7 +569,7 @@ def sweep_transfer(inside: NDArray[np.floating], outside: NDArray[np.floating] |
     pn_in = _noise_power(seg_in[n0:], length, rate_hz, until, n0, shape) * sw2
     pn_out = (np.zeros_like(pn_in) if one_mic else
               _noise_power(seg_out[n0:], length, rate_hz, until, n0, shape) * sw2)
-    with np.errstate(divide="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore"):
         fo2 = np.abs(fo) ** 2
         noise_a = pn_in / fo2
         noise_b = pn_out / fo2
