@@ -1,4 +1,4 @@
-"""Player/recorder clock mismatch, read off a deconvolved sweep response.
+r"""Player/recorder clock mismatch, read off a deconvolved sweep response.
 
 When the sweep is played by one device and recorded by another, their sample
 clocks differ by some parts per million. A recorder whose clock runs fast by a
@@ -45,8 +45,9 @@ CLOCK_MAX_PPM = 5000.0
 #: families in tests/test_clock.py (estimates within 20 ppm of the truth).
 CLOCK_STDERR_PPM = 10.0
 #: ... or this fraction of the metric's width, if larger.
-CLOCK_STDERR_WIDTHS = 0.2
-#: A mismatch is corrected only when it is this many standard errors from zero.
+CLOCK_STDERR_WIDTHS = 0.3
+#: A mismatch is corrected only when it is this many standard errors from zero
+#: (between two and this many, it is reported and added to f0's error).
 CLOCK_MIN_SIGMAS = 4.0
 #: Response stretch read (s): the direct sound and its dispersion.
 CLOCK_WINDOW_S = 0.05
@@ -63,6 +64,12 @@ class ClockEstimate:
     def to_dict(self) -> dict[str, float | bool]:
         return {"mismatch_ppm": self.ppm, "stderr_ppm": self.stderr_ppm,
                 "corrected": self.corrected}
+
+    @property
+    def evident(self) -> bool:
+        """Above the threshold and two standard errors: some mismatch is likely,
+        though perhaps too uncertain to correct."""
+        return bool(abs(self.ppm) > CLOCK_MISMATCH_PPM and abs(self.ppm) > 2 * self.stderr_ppm)
 
     @property
     def significant(self) -> bool:
@@ -111,8 +118,8 @@ def estimate_clock(response: NDArray[np.floating], rate_hz: float, start_hz: flo
     resonance, on the one-microphone path, whose ringing would dominate the
     peak). None when the band is too narrow.
 
-    The standard error is a fifth of the metric's width (one radian): on the
-    seeded families of tests/test_clock.py the estimates were within half a
+    The standard error is 0.3 of the metric's width (one radian): on the
+    seeded families tried the estimates were within 0.9 of a
     width, the larger errors on short sweeps over narrow bands, where the room's
     reflections overlap the broad peak.
 

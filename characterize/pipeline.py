@@ -35,6 +35,7 @@ from .checks import (
     Flag,
     check_band_edge,
     check_clipping,
+    check_clock,
     check_drive,
     check_end_correction,
     check_geometry,
@@ -518,7 +519,15 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
                                 -1.0 if fit.polarity_inverted else 1.0, sigma=sig)
         except FitError:
             circle = None
+    clock_rel = _clock_error(tf.clock)
+    if clock_rel:
+        se_f0 = math.hypot(fit.f0_stderr_hz, fit.f0_hz * clock_rel)
+        fit = replace(fit, f0_stderr_hz=se_f0)
+        if mode_list:
+            mode_list[0] = {**mode_list[0], "f0_stderr_hz": se_f0}
     quality = signal_quality(tf, fit)
+    quality["clock"] = None if tf.clock is None else tf.clock.to_dict()
+    flags += check_clock(tf.clock)
 
     flags += check_fit_quality(fit)
     if record_fit is not None or chosen == "csv":
@@ -596,29 +605,33 @@ def response_rise_db(tf: TransferFunction) -> float:
     return float(np.median(top) - np.median(bottom))
 
 
-def _fit_or_none(tf: TransferFunction) -> FitResult | None:
+def _fits_well(tf: TransferFunction) -> bool:
+    """A single-mode fit that describes the data (reduced chi-square within the
+    poor-fit limit) with its resonance well inside the excited band."""
+    from .checks import POOR_FIT_REDUCED_CHI2
+
     try:
-        return fit_transfer(tf, None)
+        fit = fit_transfer(tf, None)
     except FitError:
-        return None
+        return False
+    return fit.reduced_chi2 <= POOR_FIT_REDUCED_CHI2 and not check_in_band(
+        fit, tf.excited_band_hz)
 
 
 def _check_swapped(tf: TransferFunction, transfer_of: Any, inside: int, outside: int
                    ) -> tuple[TransferFunction, list[Flag]]:
     """Inside and outside channels given the wrong way round: H is then the
     reciprocal of an inside/outside ratio, a notch at f0 that rises above it.
-    When |H| rises across the band (:data:`SWAP_RISE_DB`), the channels are
-    tried the other way round; where that gives a falling response and a fit
-    that describes the data while the given order does not, the swapped order
+    When |H| rises across the band (:data:`SWAP_RISE_DB`) and the given order
+    does not fit well (poor, or a resonance not well inside the band: a fit to
+    the band limit's edge), the channels are tried the other way round; where
+    that gives a falling response that does fit well, the swapped order
     is used and said so (``channels-swapped``); otherwise the flag
     ``channels-maybe-swapped`` says what to try."""
-    from .checks import POOR_FIT_REDUCED_CHI2
-
     rise = response_rise_db(tf)
     if not (rise > SWAP_RISE_DB):
         return tf, []
-    fit_given = _fit_or_none(tf)
-    if fit_given is not None and fit_given.reduced_chi2 <= POOR_FIT_REDUCED_CHI2:
+    if _fits_well(tf):
         return tf, []  # a rising band that the resonator model describes: nothing to say
     try:
         tf_sw = transfer_of(outside, inside)
@@ -626,8 +639,7 @@ def _check_swapped(tf: TransferFunction, transfer_of: Any, inside: int, outside:
         tf_sw = None
     rise_sw = math.nan if tf_sw is None else response_rise_db(tf_sw)
     if tf_sw is not None and rise_sw < -SWAP_RISE_DB:
-        fit_sw = _fit_or_none(tf_sw)
-        if fit_sw is not None and fit_sw.reduced_chi2 <= POOR_FIT_REDUCED_CHI2:
+        if _fits_well(tf_sw):
             return tf_sw, [Flag(
                 "channels-swapped", "warning",
                 f"the inside and outside channels were given the wrong way round (|H| rose "
@@ -646,6 +658,20 @@ def _check_swapped(tf: TransferFunction, transfer_of: Any, inside: int, outside:
 #: background follows: up to 10^9 on the simulated room family, where f0 was up
 #: to 13 % off; 194 on one anechoic short take that was right: poor-fit warns there).
 ROOM_REFUSE_REDUCED_CHI2 = 1000.0
+
+
+def _clock_error(clock: Any) -> float:
+    """Relative error of f0 that a clock mismatch leaves: the correction's own
+    standard error when corrected; the estimate and its standard error together
+    when it is above the threshold and two standard errors but too uncertain to
+    correct (f0 may be off by that much); nothing otherwise."""
+    if clock is None:
+        return 0.0
+    if clock.corrected:
+        return 1e-6 * float(clock.stderr_ppm)
+    if clock.evident:
+        return 1e-6 * math.hypot(float(clock.ppm), float(clock.stderr_ppm))
+    return 0.0
 
 
 def _refuse_room_in_window(tf: TransferFunction, mf: Any) -> None:

@@ -137,3 +137,69 @@ def test_swapped_channels_are_recognised_and_fitted_the_right_way_round(
     assert wrong.fit.f0_hz == pytest.approx(right.fit.f0_hz, rel=1e-12)
     assert wrong.fit.q == pytest.approx(right.fit.q, rel=1e-12)
     assert abs(wrong.fit.f0_hz / f0 - 1) <= F0_BAR and abs(wrong.fit.q / q - 1) <= Q_BAR
+
+
+# --------------------------------------------------------------------------
+# player/recorder clock mismatch
+# --------------------------------------------------------------------------
+
+def _clock_take(tmp_path: Path, f0: float, q: float, ppm: float, seed: int,
+                duration_s: float = 3.0, rate: float = 48000.0):
+    rng = np.random.default_rng(seed)
+    s = Setup(f0_hz=f0, q=q, rate_hz=rate, snr_db=float(rng.uniform(25, 50)),
+              sweep=_sweep_for(f0, q, rate, duration_s, rng), clock_ppm=ppm)
+    data, sweep = simulate(s, seed)
+    rec = tmp_path / "rec.wav"
+    write_recording(str(rec), data, rate, "PCM_24")
+    return analyze(rec, sweep_path=_write_sweep(tmp_path, sweep))
+
+
+def test_issue_case_clock_0_1_percent_is_measured_corrected_and_named(tmp_path: Path) -> None:
+    """A recorder 0.1 % fast against the player read f0 0.1 % low at hundreds of
+    standard errors, silently. The simulator records the sweep as that recorder
+    would (the same sweep generated at its true rate, read at the nominal one;
+    the acoustics at the true frequencies)."""
+    res = _clock_take(tmp_path, 243.2, 38.0, 1000.0, 7, duration_s=4.0)
+    clock = res.quality["clock"]
+    assert clock["corrected"] and clock["mismatch_ppm"] == pytest.approx(1000.0, abs=3 * clock[
+        "stderr_ppm"])
+    df, dq, zf, zq, warnings = _judge(res, 243.2, 38.0)
+    assert abs(df) <= F0_BAR / 10 and abs(zf) <= Z_BAR and abs(zq) <= Z_BAR
+    assert warnings == ["clock-mismatch"]
+    msg = next(fl.message for fl in res.flags if fl.code == "clock-mismatch")
+    assert "ppm fast" in msg and "corrected" in msg
+
+
+@pytest.mark.slow
+def test_clock_family_worst_take(tmp_path: Path) -> None:
+    """Seeded two-microphone sweep takes over the envelope with the recorder's clock
+    0, or 300 to 2000 ppm either way, against the player's: |error|/stderr <= 3 in
+    f0 and Q on every take (the correction's uncertainty, or an uncorrected
+    estimate's, is in f0's error); where corrected, f0 within the bar; a mismatch
+    too uncertain to correct (short sweeps over narrow low bands, where the room's
+    reflections overlap the dispersed direct sound) is named (info); a take
+    without one never gets a clock warning nor an f0 off the bar. f0 from 200 Hz:
+    below, with sweeps ending under 2 kHz, the estimate can miss a mismatch of
+    several hundred ppm (seed 2024 drew one at 134 Hz: 773 ppm read as 316 +- 456,
+    f0 0.076 % low at 75 standard errors, unflagged; docs/measuring.md says so)."""
+    rng = np.random.default_rng(2024)
+    rows = []
+    for i in range(10):
+        f0 = float(np.exp(rng.uniform(np.log(200), np.log(3000))))
+        q = float(np.exp(rng.uniform(np.log(4), np.log(150))))
+        ppm = 0.0 if i % 3 == 0 else float(rng.choice([-1, 1]) * rng.uniform(300, 2000))
+        dur = max(float(rng.uniform(1.5, 6.0)), 14 * q / (math.pi * f0))
+        res = _clock_take(tmp_path, f0, q, ppm, 100 + i, duration_s=dur)
+        df, dq, zf, zq, warnings = _judge(res, f0, q)
+        rows.append((f0, q, ppm, df, dq, zf, zq, [(fl.code, fl.severity) for fl in res.flags],
+                     res.quality["clock"]))
+    assert max(abs(r[4]) for r in rows) <= Q_BAR, rows
+    assert max(max(abs(r[5]), abs(r[6])) for r in rows) <= Z_BAR, rows
+    for r in rows:
+        if r[8]["corrected"] or r[2] == 0.0:
+            assert abs(r[3]) <= F0_BAR, r
+        if r[2] == 0.0:
+            assert ("clock-mismatch", "warning") not in r[7], r
+        else:
+            assert any(code == "clock-mismatch" for code, _ in r[7]), r
+    assert sum(r[8]["corrected"] for r in rows if r[2]) >= 3, rows

@@ -11,12 +11,14 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
+from dataclasses import replace
 
 import numpy as np
 from numpy.typing import NDArray
 
 from ..errors import FitError, InputError
 from ..excitation import Sweep, SweepParams, band_filter, inverse_spectrum, usable_band
+from ..clock import ClockEstimate
 from .core import TransferFunction, WindowInfo, estimate_peak
 
 #: Time before the direct sound's peak kept in the window (s); also the taper-in.
@@ -450,8 +452,8 @@ def _deconvolve(inside: NDArray[np.floating], outside: NDArray[np.floating] | No
 
 
 def sweep_transfer(inside: NDArray[np.floating], outside: NDArray[np.floating] | None,
-                   rate_hz: float, sweep: Sweep, *, window_s: float | None = None
-                   ) -> TransferFunction:
+                   rate_hz: float, sweep: Sweep, *, window_s: float | None = None,
+                   clock_check: bool = True) -> TransferFunction:
     """H(f) from a swept-sine recording of both microphones, or of the inside
     one alone (``outside=None``: H then includes the loudspeaker and the room,
     and the window ends before the first strong reflection).
@@ -464,6 +466,13 @@ def sweep_transfer(inside: NDArray[np.floating], outside: NDArray[np.floating] |
     ringing time constants (estimated from a first, long window) or as long as
     the harmonic images allow; the ratio of the two spectra. The per-bin noise
     comes from the impulse responses' noise-only stretch after the ringing.
+
+    With two microphones the recorder's clock is compared with the player's
+    (:func:`characterize.clock.estimate_clock` on the outside response); a
+    mismatch above :data:`characterize.clock.CLOCK_MISMATCH_PPM` (and four of
+    its standard errors) is corrected: the recording is deconvolved again by the
+    sweep as that recorder saw it, and the frequencies are rescaled to the
+    player's clock (``clock_check=False`` skips the check).
     """
     p = sweep.params
     n = inside.size
@@ -475,6 +484,17 @@ def sweep_transfer(inside: NDArray[np.floating], outside: NDArray[np.floating] |
                        f"{MIN_WINDOW_S * 1000:.0f} ms for the response")
     seg_in, seg_out = ir_in.take(start, l_max), ir_out.take(start, l_max)
     band = usable_band(p)
+    clock = None
+    if clock_check and not one_mic:
+        clock = _clock_of(seg_out, rate_hz, p, band, l_max)
+        if clock is not None and clock.significant:
+            k = 1 + 1e-6 * clock.ppm
+            again = sweep_transfer(inside, outside, rate_hz, stretched_sweep(sweep, k),
+                                   window_s=window_s, clock_check=False)
+            lo_e, hi_e = again.excited_band_hz
+            return replace(again, freqs_hz=again.freqs_hz * k,
+                           excited_band_hz=(lo_e * k, hi_e * k),
+                           clock=replace(clock, corrected=True))
     from scipy import fft as sfft
 
     def spectra(length: int, dtype: type = np.float64
@@ -587,4 +607,37 @@ def sweep_transfer(inside: NDArray[np.floating], outside: NDArray[np.floating] |
                             window=win, impulse_t_s=t,
                             impulse_inside=np.array(seg_in[:length], dtype=np.float64),
                             impulse_outside=np.array(seg_out[:length], dtype=np.float64),
-                            thd_inside=thd_in, thd_outside=thd_out)
+                            thd_inside=thd_in, thd_outside=thd_out, clock=clock)
+
+
+def _clock_of(seg: NDArray[np.floating], rate_hz: float, p: SweepParams,
+              band: tuple[float, float], l_max: int) -> ClockEstimate | None:
+    """The clock mismatch from the start of a deconvolved response (the direct
+    sound and its dispersion), with the band limit's phase taken out."""
+    from ..clock import CLOCK_MAX_PPM, CLOCK_WINDOW_S, estimate_clock
+
+    n = int(min(l_max, (CLOCK_WINDOW_S + 2e-6 * CLOCK_MAX_PPM * p.duration_s) * rate_hz))
+    if n < 64:
+        return None
+    limit = band_filter(np.fft.rfftfreq(n, 1 / rate_hz), band[0], band[1])
+    return estimate_clock(np.asarray(seg[:n], dtype=np.float64), rate_hz, p.start_hz,
+                          p.duration_s, p.sweep_rate, band, limit)
+
+
+def stretched_sweep(sweep: Sweep, k: float) -> Sweep:
+    """The sweep as a recorder whose clock runs ``k`` times the player's records
+    it, in the recorder's samples: every time ``k`` times longer, every frequency
+    ``k`` times lower. Regenerated from its parameters when they come from the
+    sidecar (exact); resampled (FFT, band-limited) when they were read off the
+    samples."""
+    p = sweep.params
+    q = replace(p, start_hz=p.start_hz / k, stop_hz=p.stop_hz / k, duration_s=p.duration_s * k,
+                fade_in_s=p.fade_in_s * k, fade_out_s=p.fade_out_s * k, tail_s=p.tail_s * k)
+    if not sweep.estimated:
+        from ..excitation import make_sweep
+
+        return make_sweep(q)
+    from scipy.signal import resample
+
+    x = np.asarray(sweep.samples, dtype=np.float64)
+    return Sweep(q, resample(x, int(round(x.size * k))), estimated=True)
