@@ -49,6 +49,14 @@ CLOCK_STDERR_WIDTHS = 0.3
 #: A mismatch is corrected only when it is this many standard errors from zero
 #: (between two and this many, it is reported and added to f0's error).
 CLOCK_MIN_SIGMAS = 4.0
+#: The search starts this factor above the band's lower edge: the loudspeaker's
+#: high-pass adds group delay at the low end, which reads as a mismatch (a
+#: 40 Hz high-pass read -330 ppm on a sweep from 37 Hz with a factor 2).
+LOW_END_FACTOR = 4.0
+#: An estimate less sharp than this (ppm) says nothing: reported only (short
+#: sweeps over narrow low bands, where the room's reflections overlap the
+#: dispersed direct sound, gave spurious estimates of thousands of ppm).
+CLOCK_MAX_STDERR_PPM = 250.0
 #: Response stretch read (s): the direct sound and its dispersion.
 CLOCK_WINDOW_S = 0.05
 
@@ -66,14 +74,21 @@ class ClockEstimate:
                 "corrected": self.corrected}
 
     @property
+    def informative(self) -> bool:
+        """Sharp enough to say anything (a standard error within
+        CLOCK_MAX_STDERR_PPM, an estimate within the range searched)."""
+        return bool(self.stderr_ppm <= CLOCK_MAX_STDERR_PPM and abs(self.ppm) < CLOCK_MAX_PPM)
+
+    @property
     def evident(self) -> bool:
         """Above the threshold and two standard errors: some mismatch is likely,
         though perhaps too uncertain to correct."""
-        return bool(abs(self.ppm) > CLOCK_MISMATCH_PPM and abs(self.ppm) > 2 * self.stderr_ppm)
+        return bool(self.informative and abs(self.ppm) > CLOCK_MISMATCH_PPM
+                    and abs(self.ppm) > 2 * self.stderr_ppm)
 
     @property
     def significant(self) -> bool:
-        return bool(abs(self.ppm) > CLOCK_MISMATCH_PPM
+        return bool(self.informative and abs(self.ppm) > CLOCK_MISMATCH_PPM
                     and abs(self.ppm) > CLOCK_MIN_SIGMAS * self.stderr_ppm)
 
 
@@ -128,7 +143,7 @@ def estimate_clock(response: NDArray[np.floating], rate_hz: float, start_hz: flo
     metric's width (one radian of the dispersion's phase across the band,
     beyond a delay).
     """
-    lo, hi = 2 * band_hz[0], band_hz[1]
+    lo, hi = LOW_END_FACTOR * band_hz[0], band_hz[1]
     if not hi > 2 * lo:
         return None
     x = np.array(response, dtype=np.float64)

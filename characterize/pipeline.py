@@ -474,9 +474,18 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
         mf, selection = fit_background_selected(tf, n_modes, band_hz=band_hz)
         _refuse_room_in_window(tf, mf)
     elif n_modes > 1:
-        from .fitting.modes import fit_modes
+        from .fitting.modes import Selection, fit_modes
 
         mf = fit_modes(tf, n_modes, band_hz=band_hz)
+        selection = Selection("modes", n_modes, (), "--modes")
+    elif (two_mic and modes is None and band_hz is None and outside_distance_m is None
+          and tf.kernel is None):
+        # (the multi-mode model has no Welch smoothing kernel: sweep path only)
+        from .fitting.modes import select_mode_count
+
+        mf, selection = select_mode_count(tf)
+        if mf is not None:
+            n_modes = len(mf.modes)
     if mf is not None:
         fit = _main_mode_result(mf, tf)
         mode_list = [m.to_dict() for m in mf.modes]
