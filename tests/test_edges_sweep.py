@@ -97,7 +97,8 @@ def _one_mic_family(seed: int, n: int, tmp_path: Path, **setup_kw) -> list[tuple
 def test_one_microphone_family_without_reflections(tmp_path: Path) -> None:
     """Anechoic one-microphone takes over the envelope (f0 60 Hz to 3 kHz, Q 4 to
     150, 1.5 to 4 s and at least 25 ringing time constants: shorter takes
-    may warn poor-fit though their numbers are right): with a fixed cubic background 6 of 30 such takes warned
+    may warn poor-fit though their numbers are right): with a fixed cubic background
+    6 of 30 such takes warned
     poor-fit with |z| up to 10 (reduced chi-square up to 165); the background's
     order is now chosen by BIC (Schwarz 1978)."""
     rows = _one_mic_family(11, 10, tmp_path, reflections=())

@@ -21,7 +21,6 @@ numpy.random.default_rng(seed).standard_normal).
 from __future__ import annotations
 
 import json
-import math
 import re
 from dataclasses import dataclass, field
 from pathlib import Path

@@ -287,7 +287,7 @@ def test_two_peaks_are_fitted_as_two_modes_without_being_asked(body_runs) -> Non
     (fitting.modes.select_mode_count) and said in fit.model_selection; on this
     family that is both modes, the same fit as --modes 2, and no multiple-peaks
     warning (it used to be a single-mode fit with a warning)."""
-    for s, auto, two, _ in body_runs:
+    for _s, auto, two, _ in body_runs:
         sel = auto.to_dict()["fit"]["model_selection"]
         assert sel and sel[0]["what"] == "modes" and sel[0]["chosen"] == 2, sel
         assert auto.fit.f0_hz == pytest.approx(two.fit.f0_hz, rel=1e-7)

@@ -16,9 +16,9 @@ from dataclasses import replace
 import numpy as np
 from numpy.typing import NDArray
 
+from ..clock import ClockEstimate
 from ..errors import FitError, InputError
 from ..excitation import Sweep, SweepParams, band_filter, inverse_spectrum, usable_band
-from ..clock import ClockEstimate
 from .core import TransferFunction, WindowInfo, estimate_peak
 
 #: Time before the direct sound's peak kept in the window (s); also the taper-in.
