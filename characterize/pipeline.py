@@ -435,18 +435,14 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
 
             tf = cross_spectral_transfer(y_in, rec.view(outside), rec.sample_rate_hz,
                                          estimator=chosen)
-        if two_mic and band_hz is None and modes is None:
+        if chosen == "sweep" and band_hz is None and modes is None:
+            # (the cross-spectral path is fitted on the whole record, fitting.record)
             def transfer_of(ch_in: int, ch_out: int) -> TransferFunction:
                 assert rec is not None
-                if chosen == "sweep":
-                    from .transfer import sweep_transfer
+                from .transfer import sweep_transfer
 
-                    return sweep_transfer(rec.view(ch_in), rec.view(ch_out),
-                                          rec.sample_rate_hz, sweep, window_s=window_s)
-                from .transfer import cross_spectral_transfer
-
-                return cross_spectral_transfer(rec.view(ch_in), rec.view(ch_out),
-                                               rec.sample_rate_hz, estimator=chosen)
+                return sweep_transfer(rec.view(ch_in), rec.view(ch_out),
+                                      rec.sample_rate_hz, sweep, window_s=window_s)
 
             tf, swapped_flags = _check_swapped(tf, transfer_of, inside, outside)
             if swapped_flags and swapped_flags[0].code == "channels-swapped":
@@ -478,9 +474,8 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
 
         mf = fit_modes(tf, n_modes, band_hz=band_hz)
         selection = Selection("modes", n_modes, (), "--modes")
-    elif (two_mic and modes is None and band_hz is None and outside_distance_m is None
-          and tf.kernel is None):
-        # (the multi-mode model has no Welch smoothing kernel: sweep path only)
+    elif (chosen == "sweep" and modes is None and band_hz is None
+          and outside_distance_m is None):
         from .fitting.modes import select_mode_count
 
         mf, selection = select_mode_count(tf)
