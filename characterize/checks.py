@@ -13,6 +13,7 @@ from typing import TYPE_CHECKING, Any
 
 if TYPE_CHECKING:
     from .audio import ClipReport
+    from .clock import ClockEstimate
     from .fitting.fit import FitResult
     from .physics.helmholtz import Derived, Prediction
     from .transfer import TransferFunction
@@ -358,3 +359,23 @@ def check_precision(fit: FitResult) -> list[Flag]:
                  f"wider than the {100 * ACCURACY_F0_REL:g} % and {100 * ACCURACY_Q_REL:g} % "
                  "a clean take gives: record longer or louder (or more taps); the errors "
                  "are honest, the numbers less precise")]
+
+
+def check_clock(clock: ClockEstimate | None) -> list[Flag]:
+    """Player and recorder clocks apart by more than clock.CLOCK_MISMATCH_PPM:
+    corrected (warning), or evident but too uncertain to correct (info)."""
+    if clock is None or not (clock.corrected or clock.evident):
+        return []
+    way = "fast" if clock.ppm > 0 else "slow"
+    if clock.corrected:
+        return [Flag("clock-mismatch", "warning",
+                     f"the recorder's clock runs {abs(clock.ppm):.0f} ± {clock.stderr_ppm:.0f} ppm "
+                     f"{way} against the player's (the recorded sweep is stretched against the "
+                     "sweep file): corrected, taking the player's clock as the right one (f0 "
+                     f"would read {abs(clock.ppm) / 1e4:.3f} % {'low' if clock.ppm > 0 else 'high'}"
+                     "); play and record on one interface to avoid it")]
+    return [Flag("clock-mismatch", "info",
+                 f"the recorder's clock may run {abs(clock.ppm):.0f} ± {clock.stderr_ppm:.0f} ppm "
+                 f"{way} against the player's; too uncertain to correct (a longer or wider "
+                 "sweep measures it better): f0 may be off by that fraction, which its "
+                 "standard error includes")]

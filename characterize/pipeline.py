@@ -35,6 +35,7 @@ from .checks import (
     Flag,
     check_band_edge,
     check_clipping,
+    check_clock,
     check_drive,
     check_end_correction,
     check_f0_mismatch,
@@ -72,8 +73,6 @@ METHODS = ("auto", "sweep", "h1", "h2", "one-channel", "ringdown", "csv")
 NO_FIT_METHOD_NAMES = {"sweep": "sweep-deconvolution", "h1": "cross-spectral-h1",
                        "h2": "cross-spectral-h2", "one-channel": "one-channel",
                        "ringdown": "ringdown", "csv": "csv"}
-#: Order of the complex polynomial background on the one-microphone paths.
-BACKGROUND_ORDER = 3
 #: An excitation file must match the recording this well (normalised cross-
 #: correlation) and cover this fraction of what was recorded after its start.
 EXCITATION_MIN_MATCH = 0.1
@@ -128,6 +127,8 @@ class Result:
     modes_fit: Any = None  # fitting.modes.ModesFit when several modes or a background
     outside_mic: dict[str, Any] | None = None
     drive: dict[str, Any] | None = None
+    #: How the model's size was chosen (fitting.modes.Selection.to_dict()), per choice.
+    model_selection: list[dict[str, Any]] = field(default_factory=list)
 
     def model(self, freqs_hz: np.ndarray) -> np.ndarray:
         """The fitted model of H (all modes and the background) at ``freqs_hz``."""
@@ -144,6 +145,7 @@ class Result:
         fit["modes"] = self.modes
         fit["circle"] = self.circle
         fit["background"] = self.background
+        fit["model_selection"] = self.model_selection
         if self.decays:
             fit["decays"] = self.decays
         return {
@@ -435,6 +437,19 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
 
             tf = cross_spectral_transfer(y_in, rec.view(outside), rec.rate_hz,
                                          estimator=chosen)
+        if chosen == "sweep" and band_hz is None and modes is None:
+            # (the cross-spectral path is fitted on the whole record, fitting.record)
+            def transfer_of(ch_in: int, ch_out: int) -> TransferFunction:
+                assert rec is not None
+                from .transfer import sweep_transfer
+
+                return sweep_transfer(rec.view(ch_in), rec.view(ch_out),
+                                      rec.rate_hz, sweep, window_s=window_s)
+
+            tf, swapped_flags = _check_swapped(tf, transfer_of, inside, outside)
+            if swapped_flags and swapped_flags[0].code == "channels-swapped":
+                inside, outside = outside, inside
+            flags += swapped_flags
     if band_hz is not None:
         f = tf.freqs_hz
         if band_hz[0] < f[1] or band_hz[1] > f[-1]:
@@ -450,11 +465,25 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
     n_modes = modes or 1
     background = None
     mf = None
-    if one_mic or n_modes > 1:
-        from .fitting.modes import fit_modes
+    selection = None
+    if one_mic:
+        from .fitting.modes import fit_background_selected
 
-        mf = fit_modes(tf, n_modes, background_order=BACKGROUND_ORDER if one_mic else -1,
-                       band_hz=band_hz)
+        mf, selection = fit_background_selected(tf, n_modes, band_hz=band_hz)
+        _refuse_room_in_window(tf, mf)
+    elif n_modes > 1:
+        from .fitting.modes import Selection, fit_modes
+
+        mf = fit_modes(tf, n_modes, band_hz=band_hz)
+        selection = Selection("modes", n_modes, (), "--modes")
+    elif (chosen == "sweep" and modes is None and band_hz is None
+          and outside_distance_m is None):
+        from .fitting.modes import select_mode_count
+
+        mf, selection = select_mode_count(tf)
+        if mf is not None:
+            n_modes = len(mf.modes)
+    if mf is not None:
         fit = _main_mode_result(mf, tf)
         mode_list = [m.to_dict() for m in mf.modes]
         if mf.background:
@@ -496,7 +525,15 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
                                 -1.0 if fit.polarity_inverted else 1.0, sigma=sig)
         except FitError:
             circle = None
+    clock_rel = _clock_error(tf.clock)
+    if clock_rel:
+        se_f0 = math.hypot(fit.f0_stderr_hz, fit.f0_hz * clock_rel)
+        fit = replace(fit, f0_stderr_hz=se_f0)
+        if mode_list:
+            mode_list[0] = {**mode_list[0], "f0_stderr_hz": se_f0}
     quality = signal_quality(tf, fit)
+    quality["clock"] = None if tf.clock is None else tf.clock.to_dict()
+    flags += check_clock(tf.clock)
 
     flags += check_fit_quality(fit)
     if record_fit is not None or chosen == "csv":
@@ -540,7 +577,126 @@ def _analyze(context: dict[str, Any], recording: str | Path | None, *,
     return Result(info, air, sources, fit, tf, prediction, derived, obj, flags, used_tol,
                   modes=mode_list, circle=None if circle is None else circle.to_dict(),
                   quality=quality, background=background, modes_fit=mf,
-                  outside_mic=outside_mic if two_mic else None, drive=drive)
+                  outside_mic=outside_mic if two_mic else None, drive=drive,
+                  model_selection=[] if selection is None else [selection.to_dict()])
+
+
+#: |H| of an inside/outside ratio falls above the resonance (the low-pass form);
+#: when its top fifth of the excited band (in log frequency) lies this much above
+#: its bottom fifth, the channels are suspected to be swapped (H is then 1/H:
+#: a notch at f0, rising as f^2 above it).
+SWAP_RISE_DB = 6.0
+
+
+def response_rise_db(tf: TransferFunction) -> float:
+    """Median level of |H| in the top fifth of the excited band (log frequency)
+    minus that in the bottom fifth (dB); NaN when too few usable bins."""
+    from .transfer import peak_search_values
+
+    f = tf.freqs_hz
+    lo, hi = tf.excited_band_hz
+    h = peak_search_values(tf)
+    sel = np.flatnonzero((f >= lo) & (f <= hi) & np.isfinite(h) & (np.abs(h) > 0))
+    if sel.size < 20:
+        return math.nan
+    u = np.log(f[sel])
+    a, b = float(u[0]), float(u[-1])
+    if b - a <= 0:
+        return math.nan
+    db = 20 * np.log10(np.abs(h[sel]))
+    bottom = db[u <= a + 0.2 * (b - a)]
+    top = db[u >= b - 0.2 * (b - a)]
+    if bottom.size < 3 or top.size < 3:
+        return math.nan
+    return float(np.median(top) - np.median(bottom))
+
+
+def _fits_well(tf: TransferFunction) -> bool:
+    """A single-mode fit that describes the data (reduced chi-square within the
+    poor-fit limit) with its resonance well inside the excited band."""
+    from .checks import POOR_FIT_REDUCED_CHI2
+
+    try:
+        fit = fit_transfer(tf, None)
+    except FitError:
+        return False
+    return fit.reduced_chi2 <= POOR_FIT_REDUCED_CHI2 and not check_in_band(
+        fit, tf.excited_band_hz)
+
+
+def _check_swapped(tf: TransferFunction, transfer_of: Any, inside: int, outside: int
+                   ) -> tuple[TransferFunction, list[Flag]]:
+    """Inside and outside channels given the wrong way round: H is then the
+    reciprocal of an inside/outside ratio, a notch at f0 that rises above it.
+    When |H| rises across the band (:data:`SWAP_RISE_DB`) and the given order
+    does not fit well (poor, or a resonance not well inside the band: a fit to
+    the band limit's edge), the channels are tried the other way round; where
+    that gives a falling response that does fit well, the swapped order
+    is used and said so (``channels-swapped``); otherwise the flag
+    ``channels-maybe-swapped`` says what to try."""
+    rise = response_rise_db(tf)
+    if not (rise > SWAP_RISE_DB):
+        return tf, []
+    if _fits_well(tf):
+        return tf, []  # a rising band that the resonator model describes: nothing to say
+    try:
+        tf_sw = transfer_of(outside, inside)
+    except (FitError, InputError):
+        tf_sw = None
+    rise_sw = math.nan if tf_sw is None else response_rise_db(tf_sw)
+    if tf_sw is not None and rise_sw < -SWAP_RISE_DB:
+        if _fits_well(tf_sw):
+            return tf_sw, [Flag(
+                "channels-swapped", "warning",
+                f"the inside and outside channels were given the wrong way round (|H| rose "
+                f"{rise:.0f} dB across the band, with a notch where a resonator shows a peak); "
+                f"fitted with channel {outside} as inside and {inside} as outside: pass "
+                f"--inside {outside} --outside {inside}")]
+    return tf, [Flag(
+        "channels-maybe-swapped", "warning",
+        f"|H| rises {rise:.0f} dB across the excited band, where an inside/outside ratio "
+        "falls above its resonance: the inside and outside channels may be swapped; try "
+        f"--inside {outside} --outside {inside}")]
+
+
+#: One microphone with a reflection inside the window: a fit whose reduced
+#: chi-square exceeds this is refused (the room's ripple is then more than the
+#: background follows: up to 10^9 on the simulated room family, where f0 was up
+#: to 13 % off; 194 on one anechoic short take that was right: poor-fit warns there).
+ROOM_REFUSE_REDUCED_CHI2 = 1000.0
+
+
+def _clock_error(clock: Any) -> float:
+    """Relative error of f0 that a clock mismatch leaves: the correction's own
+    standard error when corrected; the estimate and its standard error together
+    when it is above the threshold and two standard errors but too uncertain to
+    correct (f0 may be off by that much); nothing otherwise."""
+    if clock is None:
+        return 0.0
+    if clock.corrected:
+        return 1e-6 * float(clock.stderr_ppm)
+    if clock.evident:
+        return 1e-6 * math.hypot(float(clock.ppm), float(clock.stderr_ppm))
+    return 0.0
+
+
+def _refuse_room_in_window(tf: TransferFunction, mf: Any) -> None:
+    """One microphone in a room whose reflections arrive while the resonator still
+    rings: they stay in the window (ending it before them would cut the ringing),
+    so H carries the room's ripple; where even the background chosen from the
+    data leaves residuals above the noise, the numbers cannot be trusted (on
+    simulated takes f0 was then up to 3 % off at 13 standard errors): refuse."""
+    win = tf.window
+    if win is None or win.reflection_s is None or win.reflection_s >= win.length_s:
+        return
+    if mf.reduced_chi2 <= ROOM_REFUSE_REDUCED_CHI2:
+        return
+    raise FitError(
+        f"one microphone in a room: a reflection {1000 * win.reflection_s:.1f} ms after the "
+        f"direct sound arrives while the resonator still rings, and the room's ripple across "
+        f"the fit band is more than the background model follows (reduced chi-square "
+        f"{mf.reduced_chi2:.3g}); record both microphones (the room cancels in their ratio) "
+        "or measure in a larger or more absorbent space")
 
 
 def _as_method(tf: TransferFunction, method: str) -> TransferFunction:

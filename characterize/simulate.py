@@ -57,6 +57,13 @@ class Setup:
     reflections: tuple[tuple[float, float], ...] = ((0.0031, 0.45), (0.0074, -0.3),
                                                      (0.0123, 0.22), (0.0210, 0.12))
     loudspeaker_highpass_hz: float = 40.0
+    #: The recorder's clock runs this many parts per million fast against the
+    #: player's (two devices): the sweep is recorded stretched, and every
+    #: frequency reads low by that fraction (sweeps only; noise is white either way)
+    clock_ppm: float = 0.0
+    #: Q of the loudspeaker's 2nd-order high-pass (its own resonance); 1/sqrt(2)
+    #: is Butterworth (no peak), about 2 a small driver in a sealed box
+    loudspeaker_q: float = 1 / math.sqrt(2)
     peak_dbfs: float = -6.0
     body_modes: tuple[tuple[float, float, float], ...] = ()  # (f_hz, q, gain) added to H
     #: memoryless polynomial y = x + a2 x^2 + a3 x^3 applied to the inside
@@ -101,12 +108,12 @@ def true_transfer(setup: Setup, freqs_hz: NDArray[np.floating]) -> NDArray[np.co
 def speaker_room_response(setup: Setup, freqs_hz: NDArray[np.float64]
                           ) -> NDArray[np.complex128]:
     """From the excitation to the pressure at the mouth: the loudspeaker (a
-    2nd-order Butterworth high-pass at ``loudspeaker_highpass_hz`` and a
-    1st-order low-pass at 12 kHz) times the room (direct sound plus the
-    ``reflections``, each a delay and a gain)."""
+    2nd-order high-pass at ``loudspeaker_highpass_hz``, Butterworth unless
+    ``loudspeaker_q`` says otherwise, and a 1st-order low-pass at 12 kHz) times
+    the room (direct sound plus the ``reflections``, each a delay and a gain)."""
     f = np.asarray(freqs_hz, dtype=np.float64)
     s = 1j * f / setup.loudspeaker_highpass_hz
-    speaker = s**2 / (s**2 + math.sqrt(2) * s + 1) / (1 + 1j * f / 12000.0)
+    speaker = s**2 / (s**2 + s / setup.loudspeaker_q + 1) / (1 + 1j * f / 12000.0)
     room = np.ones_like(f, dtype=np.complex128)
     for d, g in setup.reflections:
         room = room + g * np.exp(-2j * np.pi * f * d)
@@ -142,17 +149,24 @@ def simulate(setup: Setup, seed: int | np.random.Generator = 0
         params = setup.sweep or default_sweep(setup)
         sweep = make_sweep(params)
         exc = sweep.samples
+        if setup.clock_ppm:
+            # the played sweep sampled by a recorder whose clock runs fast: the same
+            # sweep generated at the recorder's true rate, read at the nominal one
+            exc = make_sweep(replace(params, rate_hz=params.rate_hz * (1 + 1e-6 * setup.clock_ppm))
+                             ).samples
     elif setup.excitation == "noise":
         exc = rng.standard_normal(int(round(setup.noise_duration_s * fs)))
     else:
         raise ValueError(f"excitation must be one of ['sweep', 'noise'], got {setup.excitation!r}")
-    n_lat = int(round(setup.latency_s * fs))
+    stretch = 1 + 1e-6 * setup.clock_ppm  # true frequency over the recorder's reading
+    n_lat = int(round(setup.latency_s * fs * stretch))
     n_rec = n_lat + exc.size
     tau = setup.q / (math.pi * setup.f0_hz)
     n_pad = int(40 * tau * fs) + int(0.1 * fs)
     n_fft = _fast_len(n_rec + n_pad)
-    f = np.fft.rfftfreq(n_fft, 1 / fs).astype(np.float64)
+    f_read = np.fft.rfftfreq(n_fft, 1 / fs).astype(np.float64)
     e = np.fft.rfft(np.concatenate([np.zeros(n_lat), exc]), n_fft)
+    f = f_read * stretch  # the acoustic chain acts at the true frequencies
     pe: NDArray[np.complex128] = np.multiply(e, speaker_room_response(setup, f))
     outside = np.fft.irfft(pe, n_fft)[:n_rec] * setup.gain_outside
     inside = np.fft.irfft(pe * true_transfer(setup, f), n_fft)[:n_rec] * setup.gain_outside

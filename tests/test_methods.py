@@ -21,7 +21,6 @@ numpy.random.default_rng(seed).standard_normal).
 from __future__ import annotations
 
 import json
-import math
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -34,7 +33,7 @@ from click.testing import CliRunner
 from scipy import signal
 
 from characterize.cli import main
-from characterize.errors import InputError
+from characterize.errors import FitError, InputError
 from characterize.excitation import sidecar_path, sidecar_text
 from characterize.pipeline import analyze
 from characterize.simulate import Setup, simulate, write_recording
@@ -336,21 +335,19 @@ def test_one_microphone_late_reflection_seed_9(tmp_path: Path) -> None:
 # --------------------------------------------------------------------------
 
 
-def test_reflection_cutting_the_window_raises_window_too_short(tmp_path: Path) -> None:
-    # Q 30 at 1 kHz: tau = Q/(pi f0) = 9.5 ms; a reflection at 40 ms leaves ~4 tau,
-    # fewer than the 7 the physics sheet §7 asks for
+def test_reflection_inside_the_ringing_is_refused_not_cut(tmp_path: Path) -> None:
+    # Q 30 at 1 kHz: tau = Q/(pi f0) = 9.5 ms; a reflection at 40 ms comes after ~4 tau.
+    # Cutting the window there biases Q low (physics sheet §7: 25.1 instead of 30 at
+    # 3 tau); keeping it leaves the room's 25 Hz ripple across a 200 Hz fit band,
+    # more than the background follows: no numbers, one line saying why (exit 1)
     case = Case(Setup(f0_hz=1000.0, q=30.0, rate_hz=16000.0, snr_db=30.0,
                       reflections=((0.04, 0.3),)), 12, "one-sweep", "one-channel-sweep",
                 "oscillator-with-background")
     case.files = _write_case(tmp_path, case)
-    res = _analyze(case)
-    win = res.transfer.window
-    assert win.reflection_s == pytest.approx(0.04, abs=1e-3)
-    tau = 30.0 / (math.pi * 1000.0)
-    assert win.length_s / tau < 7
-    flags = [fl for fl in res.flags if fl.code == "window-too-short"]
-    assert len(flags) == 1 and flags[0].severity == "warning"
-    assert res.to_dict()["quality"]["window_ms"] == pytest.approx(1000 * win.length_s)
+    with pytest.raises(FitError, match=r"reflection 40\.\d ms after the direct sound"):
+        _analyze(case)
+    r = _run("fit", case.files["rec"], "--sweep", case.files["sweep"])
+    assert r.exit_code == 1 and "record both microphones" in r.output
 
 
 @pytest.mark.parametrize("f0, q", [(200.0, 8.0), (500.0, 8.0)])

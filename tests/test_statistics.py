@@ -34,6 +34,7 @@ version.
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import math
 
@@ -241,6 +242,31 @@ def test_chain_accuracy_at_30_db(chain, method):
     assert acc.q_within == acc.n, acc
 
 
+def _understated(trial, factor, bound_too):
+    kw = {"f0_stderr_hz": trial.f0_stderr_hz / factor, "q_stderr": trial.q_stderr / factor}
+    if bound_too:  # a noise estimate too low: the bound shrinks with the errors
+        kw |= {"crlb_f0_hz": trial.crlb_f0_hz / factor, "crlb_q": trial.crlb_q / factor}
+    return dataclasses.replace(trial, **kw)
+
+
+@pytest.mark.parametrize("bound_too", [False, True])
+def test_selftest_fails_on_errors_understated_by_1_5(chain, bound_too):
+    """Issue 11 item 10: the same trials with every reported error (and, in the
+    second case, the Cramér–Rao bound too: a noise estimate 1.5x low) divided by
+    1.5 must fail, on each method, while the honest trials pass the pooled row
+    (the mean of e^2 is 2.25x larger under such a fault; chi-square limits,
+    Kay 1993 ch. 3, on the pooled f0 and Q errors)."""
+    honest = [r for r in chain.rows if r.parameter == st.POOLED]
+    assert len(honest) == len(st.METHODS) and all(r.passed for r in honest), \
+        st.format_table(chain)
+    faulty = st.tabulate(CI_PLAN, [_understated(t, 1.5, bound_too) for t in chain.trials])
+    assert not faulty.passed
+    for r in faulty.rows:
+        if r.parameter == st.POOLED:
+            assert not r.passed, st.format_table(faulty)
+            assert not r.criterion("mean e^2").passed
+
+
 def test_table_reports_what_was_simulated_and_recovered(chain):
     text = st.format_table(chain)
     assert "f0 60 to 3000 Hz" in text and "Q 4 to 150" in text and "SNR 15 to 60 dB" in text
@@ -261,6 +287,6 @@ def test_selftest_command(monkeypatch):
     doc = json.loads(res.stdout)
     assert doc["schema"] == "characterize.selftest/1"
     assert res.exit_code == (0 if doc["passed"] else 1)
-    assert len(doc["rows"]) == 4
+    assert len(doc["rows"]) == 6  # f0, Q and the pooled f0+q row per method
     res = CliRunner().invoke(main, ["selftest"])
     assert "Simulated:" in res.stdout and "bias/sd" in res.stdout

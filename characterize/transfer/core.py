@@ -11,6 +11,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
+from ..clock import ClockEstimate
 from ..errors import FitError
 
 
@@ -63,6 +64,8 @@ class TransferFunction:
     #: (sweep path only; orders 2..HARMONIC_ORDERS_THD), on ``freqs_hz``.
     thd_inside: NDArray[np.float64] | None = None
     thd_outside: NDArray[np.float64] | None = None
+    #: Player/recorder clock mismatch read off the sweep (characterize.clock), or None.
+    clock: ClockEstimate | None = None
 
     def sigma(self, h_abs: NDArray[np.float64] | None = None,
               idx: NDArray[np.intp] | None = None) -> NDArray[np.float64]:

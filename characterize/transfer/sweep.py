@@ -11,10 +11,12 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
+from dataclasses import replace
 
 import numpy as np
 from numpy.typing import NDArray
 
+from ..clock import ClockEstimate
 from ..errors import FitError, InputError
 from ..excitation import Sweep, SweepParams, band_filter, inverse_spectrum, usable_band
 from .core import TransferFunction, WindowInfo, estimate_peak
@@ -228,6 +230,12 @@ def harmonic_distortion(ir: Impulse, onset: int, pre: int, sweep: Sweep,
 #: A later arrival above this fraction of the direct sound (high-passed envelope)
 #: is taken as the first strong reflection on the one-microphone path.
 REFLECTION_FRACTION = 0.2
+
+
+#: The one-microphone window ends before the first strong reflection only when it
+#: then still holds this many ringing time constants (a shorter window biases Q,
+#: physics sheet §7); an earlier reflection stays in the window.
+REFLECTION_CUT_TIME_CONSTANTS = 20.0
 
 
 #: Stretch of a one-microphone response read for the first reflection (s, around the onset).
@@ -446,8 +454,8 @@ def _deconvolve(inside: NDArray[np.floating], outside: NDArray[np.floating] | No
 
 
 def sweep_transfer(inside: NDArray[np.floating], outside: NDArray[np.floating] | None,
-                   rate_hz: float, sweep: Sweep, *, window_s: float | None = None
-                   ) -> TransferFunction:
+                   rate_hz: float, sweep: Sweep, *, window_s: float | None = None,
+                   clock_check: bool = True) -> TransferFunction:
     """H(f) from a swept-sine recording of both microphones, or of the inside
     one alone (``outside=None``: H then includes the loudspeaker and the room,
     and the window ends before the first strong reflection).
@@ -460,6 +468,13 @@ def sweep_transfer(inside: NDArray[np.floating], outside: NDArray[np.floating] |
     ringing time constants (estimated from a first, long window) or as long as
     the harmonic images allow; the ratio of the two spectra. The per-bin noise
     comes from the impulse responses' noise-only stretch after the ringing.
+
+    With two microphones the recorder's clock is compared with the player's
+    (:func:`characterize.clock.estimate_clock` on the outside response); a
+    mismatch above :data:`characterize.clock.CLOCK_MISMATCH_PPM` (and four of
+    its standard errors) is corrected: the recording is deconvolved again by the
+    sweep as that recorder saw it, and the frequencies are rescaled to the
+    player's clock (``clock_check=False`` skips the check).
     """
     p = sweep.params
     n = inside.size
@@ -471,6 +486,17 @@ def sweep_transfer(inside: NDArray[np.floating], outside: NDArray[np.floating] |
                        f"{MIN_WINDOW_S * 1000:.0f} ms for the response")
     seg_in, seg_out = ir_in.take(start, l_max), ir_out.take(start, l_max)
     band = usable_band(p)
+    clock = None
+    if clock_check and not one_mic:
+        clock = _clock_of(seg_out, rate_hz, p, band, l_max)
+        if clock is not None and clock.significant:
+            k = 1 + 1e-6 * clock.ppm
+            again = sweep_transfer(inside, outside, rate_hz, stretched_sweep(sweep, k),
+                                   window_s=window_s, clock_check=False)
+            lo_e, hi_e = again.excited_band_hz
+            return replace(again, freqs_hz=again.freqs_hz * k,
+                           excited_band_hz=(lo_e * k, hi_e * k),
+                           clock=replace(clock, corrected=True))
     from scipy import fft as sfft
 
     def spectra(length: int, dtype: type = np.float64
@@ -508,7 +534,23 @@ def sweep_transfer(inside: NDArray[np.floating], outside: NDArray[np.floating] |
         refl = first_reflection(ir_in, onset, rate_hz, 4 * f0_est, usable_band(p)[1])
         if refl is not None:
             reflection_s = refl / rate_hz
-            length = min(length, max(4 * pre, pre + refl - int(5e-4 * rate_hz)))
+            cut = max(4 * pre, pre + refl - int(5e-4 * rate_hz))
+            # end the window before the reflection only when that leaves the ringing
+            # time to decay (judged on the cut window itself: the long one holds the
+            # room's ripple, and a cut that truncates the ringing broadens the peak,
+            # so it never looks long enough); otherwise the room stays in H and the
+            # fit's background (its order chosen from the data) describes it
+            if cut < length:
+                fc, fi_c, fo_c, _ = spectra(cut)
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    hc = fi_c / fo_c
+                try:
+                    f0_c, q_c = estimate_peak(fc, _mask_notches(fc, hc, fo_c, band), band)
+                except FitError:
+                    q_c = math.inf
+                tau_c = q_c / (math.pi * f0_c) if math.isfinite(q_c) else math.inf
+                if cut >= REFLECTION_CUT_TIME_CONSTANTS * tau_c * rate_hz:
+                    length, tau, f0_est = cut, tau_c, f0_c
     f, fi, fo, w = spectra(length)
     with np.errstate(divide="ignore", invalid="ignore"):
         h = fi / fo
@@ -549,7 +591,7 @@ def sweep_transfer(inside: NDArray[np.floating], outside: NDArray[np.floating] |
     pn_in = _noise_power(seg_in[n0:], length, rate_hz, until, n0, shape) * sw2
     pn_out = (np.zeros_like(pn_in) if one_mic else
               _noise_power(seg_out[n0:], length, rate_hz, until, n0, shape) * sw2)
-    with np.errstate(divide="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore"):
         fo2 = np.abs(fo) ** 2
         noise_a = pn_in / fo2
         noise_b = pn_out / fo2
@@ -567,4 +609,37 @@ def sweep_transfer(inside: NDArray[np.floating], outside: NDArray[np.floating] |
                             window=win, impulse_t_s=t,
                             impulse_inside=np.array(seg_in[:length], dtype=np.float64),
                             impulse_outside=np.array(seg_out[:length], dtype=np.float64),
-                            thd_inside=thd_in, thd_outside=thd_out)
+                            thd_inside=thd_in, thd_outside=thd_out, clock=clock)
+
+
+def _clock_of(seg: NDArray[np.floating], rate_hz: float, p: SweepParams,
+              band: tuple[float, float], l_max: int) -> ClockEstimate | None:
+    """The clock mismatch from the start of a deconvolved response (the direct
+    sound and its dispersion), with the band limit's phase taken out."""
+    from ..clock import CLOCK_MAX_PPM, CLOCK_WINDOW_S, estimate_clock
+
+    n = int(min(l_max, (CLOCK_WINDOW_S + 2e-6 * CLOCK_MAX_PPM * p.duration_s) * rate_hz))
+    if n < 64:
+        return None
+    limit = band_filter(np.fft.rfftfreq(n, 1 / rate_hz), band[0], band[1])
+    return estimate_clock(np.asarray(seg[:n], dtype=np.float64), rate_hz, p.start_hz,
+                          p.duration_s, p.sweep_rate, band, limit)
+
+
+def stretched_sweep(sweep: Sweep, k: float) -> Sweep:
+    """The sweep as a recorder whose clock runs ``k`` times the player's records
+    it, in the recorder's samples: every time ``k`` times longer, every frequency
+    ``k`` times lower. Regenerated from its parameters when they come from the
+    sidecar (exact); resampled (FFT, band-limited) when they were read off the
+    samples."""
+    p = sweep.params
+    q = replace(p, start_hz=p.start_hz / k, stop_hz=p.stop_hz / k, duration_s=p.duration_s * k,
+                fade_in_s=p.fade_in_s * k, fade_out_s=p.fade_out_s * k, tail_s=p.tail_s * k)
+    if not sweep.estimated:
+        from ..excitation import make_sweep
+
+        return make_sweep(q)
+    from scipy.signal import resample
+
+    x = np.asarray(sweep.samples, dtype=np.float64)
+    return Sweep(q, resample(x, int(round(x.size * k))), estimated=True)
