@@ -164,7 +164,7 @@ def estimate_clock(response: NDArray[np.floating], rate_hz: float, start_hz: flo
     while True:
         top = min(top, hi)
         sel = (f_all >= lo) & (f_all <= top)
-        spec, f = spec_all[sel], f_all[sel]
+        spec, f = spec_all[sel], np.asarray(f_all[sel], dtype=np.float64)
         if f.size < 8:
             return None
         n_out = int(2 ** math.ceil(math.log2(4 * f.size)))

@@ -22,7 +22,7 @@ PACKAGE = Path(__file__).resolve().parents[1] / "characterize"
 LAYERS: list[tuple[str, ...]] = [
     # no project imports (or only each other)
     ("characterize._version", "characterize.errors", "characterize.dsp",
-     "characterize.longfft", "characterize.stats"),
+     "characterize.longfft", "characterize.stats", "characterize.clock"),
     # unit parsing and file handling at the edges
     ("characterize.units", "characterize.fileio"),
     # physics (air, geometry, predictions) and signals in and out
@@ -34,7 +34,8 @@ LAYERS: list[tuple[str, ...]] = [
     # data-quality flags
     ("characterize.checks",),
     # the main job and what builds on results
-    ("characterize.pipeline", "characterize.tuning", "characterize.selftest"),
+    ("characterize.pipeline", "characterize.takechecks", "characterize.tuning",
+     "characterize.selftest"),
     # reports: the only matplotlib user
     ("characterize.report",),
     # batches and comparisons write reports
