@@ -80,9 +80,11 @@ def prediction_text(obj: Any, air: Any, sources: dict[str, str], pred: Any) -> s
         + (f" ({_mm(neck.width_m)} x {_mm(neck.height_m)})" if neck.shape == "slot" else "")
         + f", L = {_mm(neck.length_m)}, S = {1e6 * pred.neck_area_m2:.3f} mm² total",
         *_neck_profile_lines(neck),
-        f"  ends      outer ({neck.outer_end}) {_mm(pred.outer_end_correction_m)}, inner "
-        f"({neck.inner_end}) {_mm(pred.inner_end_correction_m)} "
-        f"[Ingard 1953 form: {_mm(pred.inner_end_correction_alternative_m)}]",
+        f"  ends      outer ({neck.outer_end}) {_mm(pred.outer_end_correction_m)}, "
+        + (f"inner ({neck.inner_end}) {_mm(pred.inner_end_correction_m)} "
+           f"[Ingard 1953 form: {_mm(pred.inner_end_correction_alternative_m)}]"
+           if obj.kind != "tube" else f"far end ({neck.inner_end}) "
+           f"{_mm(pred.inner_end_correction_m)}"),
         f"  lengths   L' = L + ends = {_mm(pred.geometric_effective_length_m)}; cavity inertia "
         f"+{_mm(pred.cavity_inertia_length_m)}; neck compliance "
         f"{1e6 * pred.neck_compliance_volume_m3:.3f} mL",
