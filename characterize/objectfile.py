@@ -9,13 +9,18 @@ A Helmholtz resonator (``kind = "helmholtz"``, the default)::
     # shape = "sphere"    diameter
     # shape = "cylinder"  diameter, length          (neck on an end face)
     # shape = "box"       width, depth, height      (neck on the width x depth face)
-    # shape = "profile"   sections = [["62 mm", "90 mm"], ["30 mm", "25 mm"]]
-    #                     (diameter, length of stacked round sections, bottom up)
+    # shape = "profile"   sections = [["62 mm", "90 mm"], ["62 mm", "30 mm", "25 mm"]]
+    #                     (bottom up: [diameter, length] straight, [lower, upper
+    #                     diameter, length] a cone, which must join its neighbours)
+    # shape = "ellipsoid" semi_axes = ["50 mm", "35 mm", "60 mm"] (c along the neck)
+    # shape = "elliptic-cylinder"  semi_axes = ["40 mm", "25 mm"], length
     # volume_by_water = "355 g" and water_temperature = "19 degC" instead of volume
     [neck]
     diameter = "18 mm"              # shape = "round" (default)
     length = "40 mm"
     # shape = "slot": width, height, length;  shape = "hole": diameter, wall_thickness
+    # shape = "profile": sections = [["19 mm", "45 mm"], ["19 mm", "28 mm", "30 mm"]]
+    #                    (from the OUTSIDE end inwards; a cone [outer, inner, length])
     # count = 3                       (identical openings)
     outer_end = "unflanged"         # or "flanged"
     inner_end = "flanged"           # or "unflanged"
@@ -26,13 +31,15 @@ A Helmholtz resonator (``kind = "helmholtz"``, the default)::
     pressure = "101.325 kPa"
     co2 = "400 ppm"                 # or a fraction, or "0.04 %"
 
-A closed-open tube (``kind = "tube"``)::
+A tube (``kind = "tube"``)::
 
     kind = "tube"
     [tube]
     diameter = "20 mm"
     length = "300 mm"
-    open_end = "unflanged"          # or "flanged"; open_end_correction optional
+    open_end = "unflanged"          # the mouth: or "flanged"; open_end_correction optional
+    far_end = "closed"              # default; "flanged" or "unflanged": open at both ends
+                                    # (far_end_correction optional)
 
 :func:`load_object` reads a file, :func:`parse_object` an already-parsed
 mapping. Both return a :class:`ResonatorObject` in SI units, or raise
@@ -78,7 +85,10 @@ _EXAMPLES = {
     "end": " or ".join(repr(e) for e in END_CONDITIONS),
     "text": "'jar-07'",
     "count": "3",
-    "sections": "[['62 mm', '90 mm'], ['30 mm', '25 mm']]",
+    "sections": "[['62 mm', '90 mm'], ['62 mm', '30 mm', '25 mm']]",
+    "neck_sections": "[['19 mm', '45 mm'], ['19 mm', '28 mm', '30 mm']]",
+    "semi_axes": "['50 mm', '35 mm', '60 mm']",
+    "tube_end": "'closed', 'flanged' or 'unflanged'",
 }
 
 
@@ -176,20 +186,64 @@ def _co2(value: Any, source: str, field: str) -> float:
     return x
 
 
-def _sections(value: Any, source: str, field: str) -> tuple[tuple[float, float], ...]:
+#: Two joining diameters may differ by this fraction (rounding in a drawing).
+JOIN_TOLERANCE = 0.005
+
+
+def _profile(value: Any, source: str, field: str, what: str, example: str,
+             order: str) -> tuple[tuple[float, ...], ...]:
+    """Sections ``[diameter, length]`` (straight) or ``[d_start, d_end, length]``
+    (a truncated cone); a cone's ends must join its neighbours."""
     if not isinstance(value, list) or not value:
-        raise InputError(source, field, f"expected a list of [diameter, length] pairs from the "
-                         f"bottom up, e.g. {_EXAMPLES['sections']}, got {value!r}")
-    out = []
+        raise InputError(source, field, f"expected a list of {what} {order}, e.g. "
+                         f"{example}, got {value!r}")
     length = _quantity("length")
-    for i, pair in enumerate(value, start=1):
+    out: list[tuple[float, ...]] = []
+    for i, item in enumerate(value, start=1):
         where = f"{field}[{i}]"
-        if not isinstance(pair, list) or len(pair) != 2:
-            raise InputError(source, where, f"expected [diameter, length] with units, "
-                             f"e.g. ['62 mm', '90 mm'], got {pair!r}")
-        out.append((length(pair[0], source, f"{where}.diameter"),
-                    length(pair[1], source, f"{where}.length")))
+        if not isinstance(item, list) or len(item) not in (2, 3):
+            raise InputError(source, where, "expected [diameter, length] or [diameter, "
+                             "diameter, length] (a cone) with units, e.g. ['62 mm', '90 mm'] "
+                             f"or ['62 mm', '30 mm', '25 mm'], got {item!r}")
+        if len(item) == 2:
+            out.append((length(item[0], source, f"{where}.diameter"),
+                        length(item[1], source, f"{where}.length")))
+        else:
+            out.append((length(item[0], source, f"{where}.diameter_start"),
+                        length(item[1], source, f"{where}.diameter_end"),
+                        length(item[2], source, f"{where}.length")))
+    for i in range(1, len(out)):
+        prev, cur = out[i - 1], out[i]
+        if len(prev) == 2 and len(cur) == 2:
+            continue  # two straight sections may step
+        end_prev, start_cur = prev[-2], cur[0]
+        if abs(start_cur / end_prev - 1.0) > JOIN_TOLERANCE:
+            raise InputError(
+                source, f"{field}[{i + 1}]", f"does not join the section before it: it starts "
+                f"at {1e3 * start_cur:.4g} mm where that one ends at {1e3 * end_prev:.4g} mm "
+                "(a cone's ends must equal its neighbours' diameters)")
     return tuple(out)
+
+
+def _sections(value: Any, source: str, field: str) -> tuple[tuple[float, ...], ...]:
+    return _profile(value, source, field, "sections", _EXAMPLES["sections"],
+                    "from the bottom up")
+
+
+def _neck_sections(value: Any, source: str, field: str) -> tuple[tuple[float, float, float], ...]:
+    out = _profile(value, source, field, "neck sections", _EXAMPLES["neck_sections"],
+                   "from the outside end inwards")
+    return tuple((sec[0], sec[0], sec[1]) if len(sec) == 2 else (sec[0], sec[1], sec[2])
+                 for sec in out)
+
+
+def _semi_axes(value: Any, source: str, field: str) -> tuple[float, ...]:
+    if not isinstance(value, list) or len(value) not in (2, 3):
+        raise InputError(source, field, "expected semi-axes with units, three for an "
+                         f"ellipsoid (a, b across, c along the neck's axis), e.g. "
+                         f"{_EXAMPLES['semi_axes']}, two for an elliptic cylinder, got {value!r}")
+    length = _quantity("length")
+    return tuple(length(x, source, f"{field}[{i}]") for i, x in enumerate(value, start=1))
 
 
 #: Public name of the CO2 parser (command-line options use it too).
@@ -209,10 +263,15 @@ _PARSERS: dict[str, Callable[[Any, str, str], Any]] = {
     "end": _end,
     "text": _text,
     "kind": _choice(KINDS),
-    "cavity_shape": _choice(tuple(CAVITY_SHAPES), {"sphere": "sphere", "cuboid": "box"}),
+    "cavity_shape": _choice(tuple(CAVITY_SHAPES), {"sphere": "sphere", "cuboid": "box",
+                                                   "elliptic_cylinder": "elliptic-cylinder",
+                                                   "elliptical-cylinder": "elliptic-cylinder"}),
     "neck_shape": _choice(tuple(NECK_SHAPES), {"rectangular": "slot", "circular": "round"}),
     "count": _count,
     "sections": _sections,
+    "neck_sections": _neck_sections,
+    "semi_axes": _semi_axes,
+    "tube_end": _choice(("closed", *END_CONDITIONS)),
 }
 
 
@@ -222,16 +281,18 @@ _TABLES: dict[str, dict[str, str]] = {
         "shape": "cavity_shape", "volume": "volume", "volume_by_water": "mass",
         "water_temperature": "temperature", "diameter": "length", "length": "length",
         "width": "length", "depth": "length", "height": "length", "sections": "sections",
+        "semi_axes": "semi_axes",
     },
     "neck": {
         "shape": "neck_shape", "diameter": "length", "width": "length", "height": "length",
         "length": "length", "wall_thickness": "length", "count": "count",
         "outer_end": "end", "inner_end": "end",
         "outer_end_correction": "length0", "inner_end_correction": "length0",
+        "sections": "neck_sections",
     },
     "tube": {
         "diameter": "length", "length": "length", "open_end": "end",
-        "open_end_correction": "length0",
+        "open_end_correction": "length0", "far_end": "tube_end", "far_end_correction": "length0",
     },
     "air": {
         "temperature": "temperature", "relative_humidity": "fraction",
@@ -277,12 +338,14 @@ def _fmt_ml(v: float) -> str:
 
 
 def _build_cavity(v: dict[str, Any], raw: Mapping[str, Any], source: str) -> Cavity:
-    dims = [k for k in ("diameter", "length", "width", "depth", "height", "sections") if k in v]
+    dims = [k for k in ("diameter", "length", "width", "depth", "height", "sections",
+                        "semi_axes") if k in v]
     shape = v.get("shape")
     if shape is None:
         if dims:
             raise InputError(source, "cavity.shape", f"dimensions given ({', '.join(dims)}) but "
-                             "no shape; add shape = 'sphere', 'cylinder', 'box' or 'profile'")
+                             "no shape; add shape = 'sphere', 'cylinder', 'box', 'profile', "
+                             "'ellipsoid' or 'elliptic-cylinder'")
         shape = "volume"
     needed = CAVITY_SHAPES[shape]
     for key in dims:
@@ -293,7 +356,12 @@ def _build_cavity(v: dict[str, Any], raw: Mapping[str, Any], source: str) -> Cav
     for need in needed:
         if need not in v:
             raise _missing(source, f"cavity.{need}",
-                           "sections" if need == "sections" else "length")
+                           need if need in ("sections", "semi_axes") else "length")
+    if "semi_axes" in v:
+        want = 3 if shape == "ellipsoid" else 2
+        if len(v["semi_axes"]) != want:
+            raise InputError(source, "cavity.semi_axes", f"a{'n' if want == 3 else ''} "
+                             f"{shape} takes {want} semi-axes, got {len(v['semi_axes'])}")
     if "volume" in v and "volume_by_water" in v:
         raise InputError(source, "cavity.volume_by_water", "give either volume or "
                          "volume_by_water, not both")
@@ -316,7 +384,7 @@ def _build_cavity(v: dict[str, Any], raw: Mapping[str, Any], source: str) -> Cav
     cav = Cavity(
         volume_m3=1.0, shape=shape, diameter_m=v.get("diameter"), length_m=v.get("length"),
         width_m=v.get("width"), depth_m=v.get("depth"), height_m=v.get("height"),
-        sections=v.get("sections", ()),
+        sections=v.get("sections", ()), semi_axes_m=v.get("semi_axes", ()),
     )
     shape_volume = cav.shape_volume_m3
     if volume is None:
@@ -335,7 +403,8 @@ def _build_cavity(v: dict[str, Any], raw: Mapping[str, Any], source: str) -> Cav
     return Cavity(
         volume_m3=volume, shape=shape, diameter_m=cav.diameter_m, length_m=cav.length_m,
         width_m=cav.width_m, depth_m=cav.depth_m, height_m=cav.height_m,
-        sections=cav.sections, volume_source=vsource, water_mass_kg=water_mass,
+        sections=cav.sections, semi_axes_m=cav.semi_axes_m, volume_source=vsource,
+        water_mass_kg=water_mass,
         water_temperature_c=water_t,
     )
 
@@ -349,13 +418,14 @@ def _build_neck(v: dict[str, Any], source: str) -> Neck:
                              "give one of them")
         v = {**v, "wall_thickness": v["length"]}
         del v["length"]
-    for key in ("diameter", "width", "height", "length", "wall_thickness"):
+    for key in ("diameter", "width", "height", "length", "wall_thickness", "sections"):
         if key in v and key not in needed:
             raise InputError(source, f"neck.{key}", f"not used by shape {shape!r} (it takes "
                              f"{', '.join(needed)})")
     for key in needed:
         if key not in v:
-            raise _missing(source, f"neck.{key}", "length")
+            raise _missing(source, f"neck.{key}", "neck_sections" if key == "sections"
+                           else "length")
     ends = {}
     for key in ("outer_end", "inner_end"):
         if key in v:
@@ -364,10 +434,15 @@ def _build_neck(v: dict[str, Any], source: str) -> Neck:
             ends[key] = "flanged"  # a hole in a wall is baffled on both sides
         else:
             raise _missing(source, f"neck.{key}", "end")
+    sections: tuple[tuple[float, float, float], ...] = ()
     if shape == "slot":
         width, height = v["width"], v["height"]
         diameter = 2.0 * math.sqrt(width * height / math.pi)
         length = v["length"]
+    elif shape == "profile":
+        width = height = None
+        sections = v["sections"]
+        diameter, length = sections[0][0], sum(sec[2] for sec in sections)
     else:
         width = height = None
         diameter = v["diameter"]
@@ -376,7 +451,7 @@ def _build_neck(v: dict[str, Any], source: str) -> Neck:
         diameter_m=diameter, length_m=length, outer_end=ends["outer_end"],
         inner_end=ends["inner_end"], shape=shape, width_m=width, height_m=height,
         count=v.get("count", 1), outer_end_correction_m=v.get("outer_end_correction"),
-        inner_end_correction_m=v.get("inner_end_correction"),
+        inner_end_correction_m=v.get("inner_end_correction"), sections=sections,
     )
 
 
@@ -385,8 +460,13 @@ def _build_tube(v: dict[str, Any], source: str) -> tuple[Cavity, Neck]:
         if key not in v:
             raise _missing(source, f"tube.{key}", kind)
     d, length = v["diameter"], v["length"]
-    neck = Neck(diameter_m=d, length_m=length, outer_end=v["open_end"], inner_end="closed",
-                outer_end_correction_m=v.get("open_end_correction"))
+    far = v.get("far_end", "closed")
+    if "far_end_correction" in v and far == "closed":
+        raise InputError(source, "tube.far_end_correction", "only for an open far end "
+                         "(far_end = 'flanged' or 'unflanged')")
+    neck = Neck(diameter_m=d, length_m=length, outer_end=v["open_end"], inner_end=far,
+                outer_end_correction_m=v.get("open_end_correction"),
+                inner_end_correction_m=v.get("far_end_correction"))
     cavity = Cavity(volume_m3=math.pi * d * d / 4.0 * length, shape="tube", diameter_m=d,
                     length_m=length, volume_source="shape")
     return cavity, neck
@@ -396,11 +476,12 @@ def _check_fit(cavity: Cavity, neck: Neck, source: str) -> None:
     """The neck must fit on the cavity face it opens into."""
     widths = cavity.neck_side_widths_m
     side_area = cavity.neck_side_area_m2
-    if widths is None or side_area is None or cavity.shape == "sphere":
+    curved = cavity.shape in ("sphere", "ellipsoid")
+    if widths is None or side_area is None or curved:
         # a sphere's neck sits on a curved shell: only its total area is checked
-        if cavity.shape == "sphere" and side_area is not None and neck.area_m2 >= side_area:
-            raise InputError(source, "neck", "the openings' total area exceeds the sphere's "
-                             "cross-section")
+        if curved and side_area is not None and neck.area_m2 >= side_area:
+            raise InputError(source, "neck", f"the openings' total area exceeds the "
+                             f"{cavity.shape}'s cross-section")
         return
     face = sorted(widths)
     if neck.shape == "slot":
@@ -411,8 +492,10 @@ def _check_fit(cavity: Cavity, neck: Neck, source: str) -> None:
                 source, "neck.width", f"the slot ({1e3 * neck.width_m:.4g} x "
                 f"{1e3 * neck.height_m:.4g} mm) is wider than the cavity face it opens into "
                 f"({1e3 * face[1]:.4g} x {1e3 * face[0]:.4g} mm)")
-    elif neck.diameter_m > face[0]:
-        raise InputError(source, "neck.diameter", f"{1e3 * neck.diameter_m:.4g} mm is wider "
+    elif max(neck.diameter_m, neck.inner_diameter_m) > face[0] * (1 + JOIN_TOLERANCE):
+        field = "neck.sections" if neck.sections else "neck.diameter"
+        widest = max(neck.diameter_m, neck.inner_diameter_m)
+        raise InputError(source, field, f"{1e3 * widest:.4g} mm is wider "
                          f"than the cavity face it opens into ({1e3 * face[0]:.4g} mm)")
     if neck.area_m2 >= side_area:
         raise InputError(source, "neck.count", f"the {neck.count} openings' total area "

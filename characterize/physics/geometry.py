@@ -50,6 +50,8 @@ CAVITY_SHAPES: dict[str, tuple[str, ...]] = {
     "cylinder": ("diameter", "length"),
     "box": ("width", "depth", "height"),
     "profile": ("sections",),
+    "ellipsoid": ("semi_axes",),
+    "elliptic-cylinder": ("semi_axes", "length"),
 }
 
 
@@ -58,6 +60,7 @@ NECK_SHAPES: dict[str, tuple[str, ...]] = {
     "round": ("diameter", "length"),
     "slot": ("width", "height", "length"),
     "hole": ("diameter", "wall_thickness"),
+    "profile": ("sections",),
 }
 
 

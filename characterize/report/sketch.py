@@ -22,11 +22,16 @@ __all__ = ["sketch_object"]
 def _cavity_outline(obj: ResonatorObject) -> tuple[list[tuple[float, float]], float, str]:
     """Closed polyline of the cavity's side view (mm, bottom at y = 0), its
     top height (mm) and a label."""
+    from ..physics.geometry import section_parts
+
     cav = obj.cavity
     lin = math.sqrt(cav.area_scale)
     if cav.shape in ("cylinder", "tube"):
         assert cav.diameter_m is not None and cav.length_m is not None
         r, h = 500.0 * cav.diameter_m * lin, 1e3 * cav.length_m
+        if obj.kind == "tube" and obj.neck.inner_end != "closed":
+            return [(-r, h), (-r, 0.0), (None, None), (r, 0.0), (r, h)], h, (  # type: ignore[list-item]
+                f"tube d {1e3 * cav.diameter_m:.1f} x L {h:.1f} mm, open at both ends")
         if obj.kind == "tube":
             return [(-r, h), (-r, 0.0), (r, 0.0), (r, h)], h, (
                 f"tube d {1e3 * cav.diameter_m:.1f} x L {h:.1f} mm, closed end")
@@ -41,13 +46,27 @@ def _cavity_outline(obj: ResonatorObject) -> tuple[list[tuple[float, float]], fl
     if cav.shape == "profile":
         pts_l: list[tuple[float, float]] = []
         y = 0.0
-        for d, ln in cav.sections:
-            r = 500.0 * d * lin
-            pts_l += [(-r, y), (-r, y + 1e3 * ln)]
+        for sec in cav.sections:
+            d0, d1, ln = section_parts(sec)
+            pts_l += [(-500.0 * d0 * lin, y), (-500.0 * d1 * lin, y + 1e3 * ln)]
             y += 1e3 * ln
         right = [(-x, yy) for x, yy in pts_l]
         return list(reversed(pts_l)) + right, y, (
             f"profile, {len(cav.sections)} sections, axial length {y:.1f} mm")
+    if cav.shape == "ellipsoid":
+        a, _, c = (500.0 * x for x in cav.semi_axes_m)
+        a *= lin
+        return ([(a * math.sin(t), c - c * math.cos(t))
+                 for t in [2 * math.pi * i / 180 for i in range(181)]], 2 * c,
+                "ellipsoid, semi-axes " + " x ".join(f"{1e3 * x:.1f}" for x in cav.semi_axes_m)
+                + " mm (side view: a across, c along the axis)")
+    if cav.shape == "elliptic-cylinder":
+        assert cav.length_m is not None
+        a, b = (1e3 * x * lin for x in cav.semi_axes_m)
+        h = 1e3 * cav.length_m
+        return [(-a, h), (-a, 0.0), (a, 0.0), (a, h)], h, (
+            f"elliptic cylinder, semi-axes {a:.1f} x {b:.1f} mm, {h:.1f} mm long "
+            "(side view across a)")
     if cav.shape == "sphere":
         assert cav.diameter_m is not None
         r = 500.0 * cav.diameter_m * lin
@@ -90,13 +109,24 @@ def sketch_object(obj: ResonatorObject, path: str | Path,
     fig, ax = _figure(1, [1.0], (6.4, 6.0))
     ax.grid(False)
     dashed = obj.cavity.shape == "volume"
-    xs, ys = zip(*outline, strict=False)
-    ax.plot(xs, ys, color=PALETTE["ink"], lw=2.0, ls="--" if dashed else "-",
-            label=label)
+    xs = [x for x, _ in outline if x is not None]
+    part: list[tuple[float, float]] = []
+    labelled = False
+    for pt in [*outline, (None, None)]:
+        if pt[0] is None:
+            if part:
+                px, py = zip(*part, strict=True)
+                ax.plot(px, py, color=PALETTE["ink"], lw=2.0, ls="--" if dashed else "-",
+                        label=None if labelled else label)
+                labelled = True
+            part = []
+        else:
+            part.append(pt)
     half_w = 1e3 * (neck.width_m if neck.shape == "slot" and neck.width_m else
                     neck.diameter_m) / 2.0
     length = 1e3 * neck.length_m
-    top_half = abs(outline[0][0]) if obj.cavity.shape != "sphere" else half_w
+    curved = obj.cavity.shape in ("sphere", "ellipsoid")
+    top_half = abs(outline[0][0]) if not curved else half_w
     cavity_half = max(abs(x) for x in xs)
     if obj.kind == "tube":
         centres = [0.0]
@@ -109,38 +139,60 @@ def sketch_object(obj: ResonatorObject, path: str | Path,
         y0 = top - protrude
     y1 = y0 + length
     wall = max(0.6, 0.08 * half_w)
+    # the neck's radius along its length, from the inner end (y0) up to the mouth
+    if neck.sections:
+        # (height, radius) down the sections, given from the outside end inwards
+        pts: list[tuple[float, float]] = []
+        y = y1
+        for d0, d1, ln in neck.sections:
+            pts += [(y, 500.0 * d0), (y - 1e3 * ln, 500.0 * d1)]
+            y -= 1e3 * ln
+    else:
+        pts = [(y1, half_w), (y0, half_w)]
+    py = [q[0] for q in pts]
     for i, xc in enumerate(centres):
         for side in (-1, 1):
-            x = xc + side * (half_w + wall / 2)
-            ax.plot([x, x], [y0, y1], color=PALETTE["ink"], lw=2.0)
-        ax.fill_between([xc - half_w, xc + half_w], y0, y1, color=PALETTE["band"], alpha=0.6,
-                        lw=0, label="neck air" if i == 0 else None)
+            ax.plot([xc + side * (r + wall / 2) for _, r in pts], py, color=PALETTE["ink"],
+                    lw=2.0)
+        ax.fill_betweenx(py, [xc - r for _, r in pts], [xc + r for _, r in pts],
+                         color=PALETTE["band"], alpha=0.6, lw=0,
+                         label="neck air" if i == 0 else None)
         d_out = 1e3 * ends.outer_m
         ax.fill_between([xc - half_w, xc + half_w], y1, y1 + d_out, color=PALETTE["fit"],
                         alpha=0.25, lw=0, hatch="...",
                         label=f"outer end correction {d_out:.2f} mm ({ends.outer_source})"
                         if i == 0 else None)
-        if obj.kind != "tube" and ends.inner_m > 0:
+        r_in = pts[-1][1]
+        if ends.inner_m > 0:
             d_in = 1e3 * ends.inner_m
-            ax.fill_between([xc - half_w, xc + half_w], y0 - d_in, y0, color=PALETTE["prediction"],
+            y_in = 0.0 if obj.kind == "tube" else y0
+            which = "far end" if obj.kind == "tube" else "inner end"
+            ax.fill_between([xc - r_in, xc + r_in], y_in - d_in, y_in, color=PALETTE["prediction"],
                             alpha=0.25, lw=0, hatch="...",
-                            label=f"inner end correction {d_in:.2f} mm ({ends.inner_source})"
+                            label=f"{which} correction {d_in:.2f} mm ({ends.inner_source})"
                             if i == 0 else None)
     span = max(cavity_half, half_w * 4)
     if neck.outer_end == "flanged":
         ax.plot([-1.4 * span, 1.4 * span], [y1, y1], color=PALETTE["muted"], lw=3.0,
                 label="flange (baffle) at the mouth")
-    if obj.kind != "tube" and obj.cavity.shape != "sphere":
+    if obj.kind == "tube" and neck.inner_end == "flanged":
+        ax.plot([-1.4 * span, 1.4 * span], [0.0, 0.0], color=PALETTE["muted"], lw=3.0,
+                label="flange (baffle) at the far end")
+    if obj.kind != "tube" and not curved:
         # the cavity's top face around the openings
         ax.plot([-top_half, top_half], [top, top], color=PALETTE["ink"], lw=2.0,
                 ls="--" if dashed else "-")
     what = f"{neck.count} x " if neck.count > 1 else ""
-    if neck.shape == "slot":
+    if neck.sections:
+        dims = (f"profile, mouth d {1e3 * neck.diameter_m:.1f} mm, inner d "
+                f"{1e3 * neck.inner_diameter_m:.1f} mm")
+    elif neck.shape == "slot":
         dims = f"slot {1e3 * neck.width_m:.1f} x {1e3 * neck.height_m:.1f} mm"  # type: ignore[operator]
     else:
         dims = f"{neck.shape} d {1e3 * neck.diameter_m:.1f} mm"
     note = ax.annotate(f"{what}{dims}, L {length:.1f} mm\nouter {neck.outer_end}"
-                + ("" if obj.kind == "tube" else f", inner {neck.inner_end}"),
+                + (f", inner {neck.inner_end}" if obj.kind != "tube" else
+                   "" if neck.inner_end == "closed" else f", far end {neck.inner_end}"),
                 xy=(0.0, y1 + 1e3 * ends.outer_m), xytext=(0, 8),
                 textcoords="offset points", fontsize=8, color=PALETTE["ink"], va="bottom",
                 ha="center")
