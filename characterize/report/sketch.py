@@ -121,7 +121,7 @@ def sketch_object(obj: ResonatorObject, path: str | Path,
                 labelled = True
             part = []
         else:
-            part.append(pt)
+            part.append((float(pt[0]), float(pt[1] or 0.0)))
     half_w = 1e3 * (neck.width_m if neck.shape == "slot" and neck.width_m else
                     neck.diameter_m) / 2.0
     length = 1e3 * neck.length_m
@@ -149,12 +149,12 @@ def sketch_object(obj: ResonatorObject, path: str | Path,
             y -= 1e3 * ln
     else:
         pts = [(y1, half_w), (y0, half_w)]
-    py = [q[0] for q in pts]
+    ys_neck = [q[0] for q in pts]
     for i, xc in enumerate(centres):
         for side in (-1, 1):
-            ax.plot([xc + side * (r + wall / 2) for _, r in pts], py, color=PALETTE["ink"],
+            ax.plot([xc + side * (r + wall / 2) for _, r in pts], ys_neck, color=PALETTE["ink"],
                     lw=2.0)
-        ax.fill_betweenx(py, [xc - r for _, r in pts], [xc + r for _, r in pts],
+        ax.fill_betweenx(ys_neck, [xc - r for _, r in pts], [xc + r for _, r in pts],
                          color=PALETTE["band"], alpha=0.6, lw=0,
                          label="neck air" if i == 0 else None)
         d_out = 1e3 * ends.outer_m
