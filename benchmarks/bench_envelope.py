@@ -193,7 +193,6 @@ def make_files(t: Take, folder: Path) -> list[str]:
         setup = Setup(f0_hz=t.f0_hz, q=t.q, rate_hz=t.rate_hz, snr_db=t.snr_db,
                       sweep=_sweep_params(t, rng))
     data, sweep = simulate(setup, seed=int(rng.integers(2**31)))
-    args: list[str] = []
     if t.path == "one-channel":
         sf.write(rec, data[:, 0], int(t.rate_hz), subtype=t.subtype)
         return [str(rec), "--sweep", str(_write_sweep(folder, sweep))]
@@ -304,7 +303,7 @@ def markdown(rows: list[dict], seed0: int) -> str:
             f"{100 * r['cov1_f0']:.1f} / {100 * r['cov1_q']:.1f} % | "
             f"{100 * r['cov2_f0']:.1f} / {100 * r['cov2_q']:.1f} % | "
             f"{r['false_warnings']} | {r['silent_misses']} | "
-            f"{r['worst_z'][0] if r['worst_z'] else '-'}: {r['worst_z'][1] if r['worst_z'] else '-'} |")
+            f"{'%s: %s' % tuple(r['worst_z']) if r['worst_z'] else '-'} |")
     out.append("")
     out.append(f"Seeds {seed0} onwards; bars: |f0 err| <= {100 * F0_BAR:g} %, "
                f"|Q err| <= {100 * Q_BAR:g} %, p99 |z| <= 3, 2σ coverage 95 ± 3 %.")
